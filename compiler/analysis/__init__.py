@@ -1,0 +1,1 @@
+"""Analyses around the core: pre-hardware checks, fault grading, generation, diagnosis."""

@@ -1,0 +1,179 @@
+"""The intermediate form: a checked test program as logical steps, independent of the syntax.
+
+The front end (`scanloom.lang`) builds it; the back end (`scanloom.backend`) schedules it into
+scans. Every node is a frozen record whose source span does not take part in equality. Names
+are resolved: devices by chain ref, nets by board net name, pins as `REF.PORT`.
+
+Values are single characters: "0", "1", "Z" (released, drives only), "X" (don't care,
+expectations only). Register images are bit strings in BSDL order (leftmost = most
+significant bit = nearest TDI).
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field, fields, is_dataclass
+from typing import Any, Union
+
+from .diagnostics import SourceSpan
+
+__all__ = [
+    "Drive",
+    "Expect",
+    "RegisterWrite",
+    "RegisterRead",
+    "Step",
+    "Wait",
+    "TestItem",
+    "Test",
+    "Program",
+    "Override",
+    "dump_ir",
+    "ir_to_data",
+    "COMPUTED",
+]
+
+COMPUTED = "?"  # an expectation value the virtual board computes from the board's logic
+
+
+@dataclass(frozen=True, slots=True)
+class Drive:
+    """Drive one net or pin to "0", "1" or release it ("Z").
+
+    `driver` is the scan pin (`REF.PORT`) the front end chose to drive the net: the user's pin
+    when a pin was named, otherwise the first capable device in chain order in a driving mode.
+    """
+
+    target: str  # a net name, or REF.PORT when `is_pin`
+    is_pin: bool
+    value: str
+    driver: str | None
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Expect:
+    """Expect one net or pin to read "0", "1", "X", or COMPUTED from the logic model."""
+
+    target: str
+    is_pin: bool
+    value: str
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class RegisterWrite:
+    """Shift `bits` into a named data register of one device (BSDL order, MSB first)."""
+
+    ref: str
+    register: str
+    bits: str
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class RegisterRead:
+    """Expect a named data register to capture `expected` (0/1/X per bit, BSDL order)."""
+
+    ref: str
+    register: str
+    expected: str
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Override:
+    """An intentional exception to a safety check, with the reason the listing repeats."""
+
+    check: str
+    reason: str
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Step:
+    """One data-register scan's worth of intent.
+
+    `modes` is the instruction in force for every chain device (chain order), after the
+    compiler chose the instruction that selects any register accessed here. `drives` is the
+    complete drive state in force (persisted from earlier steps, sorted by target); Z entries
+    are kept so a release is visible. `expects` are this step's expectations: for boundary
+    cells they are the response to this step's drives (the back end pipelines them into the
+    next scan); `reads` compare what the named register captures in this step's own scan.
+    `wait_clocks` are spent in Run-Test/Idle after this step's update.
+    """
+
+    name: str
+    modes: tuple[tuple[str, str], ...]
+    drives: tuple[Drive, ...]
+    expects: tuple[Expect, ...]
+    writes: tuple[RegisterWrite, ...] = ()
+    reads: tuple[RegisterRead, ...] = ()
+    wait_clocks: int = 0
+    overrides: tuple[Override, ...] = ()
+    span: SourceSpan | None = field(default=None, compare=False)
+
+    def mode_of(self, ref: str) -> str:
+        return dict(self.modes)[ref]
+
+
+@dataclass(frozen=True, slots=True)
+class Wait:
+    """Clocks in Run-Test/Idle with `modes` loaded (e.g. RUNBIST needs its instruction first)."""
+
+    clocks: int
+    modes: tuple[tuple[str, str], ...]
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+TestItem = Union[Step, Wait]
+
+
+@dataclass(frozen=True, slots=True)
+class Test:
+    name: str
+    title: str
+    items: tuple[TestItem, ...]
+    overrides: tuple[Override, ...] = ()
+    span: SourceSpan | None = field(default=None, compare=False)
+
+    @property
+    def steps(self) -> tuple[Step, ...]:
+        return tuple(item for item in self.items if isinstance(item, Step))
+
+
+@dataclass(frozen=True, slots=True)
+class Program:
+    """A whole program. `board_path` is absolute; `tck_hz` None when not declared."""
+
+    source: str
+    board_path: str
+    tck_hz: float | None
+    default_instruction: str
+    tests: tuple[Test, ...]
+    end_state: str = "TEST_LOGIC_RESET"  # or RUN_TEST_IDLE when the program says so
+    fight_limit_s: float = 1e-3
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+def ir_to_data(node: Any, *, spans: bool = True) -> Any:
+    """Plain JSON-able data for an IR node, field by field, with a `kind` tag."""
+    if is_dataclass(node) and not isinstance(node, type):
+        data: dict[str, Any] = {"kind": type(node).__name__}
+        for f in fields(node):
+            value = getattr(node, f.name)
+            if f.name == "span":
+                if spans and value is not None:
+                    data["span"] = f"{value.line}:{value.column}"
+                continue
+            data[f.name] = ir_to_data(value, spans=spans)
+        return data
+    if isinstance(node, tuple):
+        return [ir_to_data(item, spans=spans) for item in node]
+    return node
+
+
+def dump_ir(program: Program, *, spans: bool = True) -> str:
+    """The deterministic JSON dump behind `scanloom check --dump-ir` and the golden tests."""
+    data = ir_to_data(program, spans=spans)
+    return json.dumps(data, indent=2, sort_keys=False) + "\n"

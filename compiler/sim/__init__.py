@@ -1,0 +1,1 @@
+"""Simulation: an independent replay of the TAP and registers, and the virtual board."""

@@ -1,0 +1,1 @@
+"""The lark grammars of scanloom, shipped as package data and loaded through the package."""
