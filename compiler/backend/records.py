@@ -100,11 +100,15 @@ class DeviceMap:
 
     ref: str
     entity: str
-    position: int
+    position: int  # 0 = nearest TDI
     ir_length: int
-    instructions: dict[str, str]  # instruction -> opcode used (BSDL order)
-    registers: dict[str, int]
-    cells: tuple[CellMeaning, ...]
+    ir_capture: str  # BSDL order, X bits not compared
+    idcode: str | None  # BSDL order (32 characters 0/1/X)
+    opcodes: dict[str, tuple[str, ...]]  # instruction -> every opcode (BSDL order, X allowed)
+    selects: dict[str, str]  # instruction -> register it selects
+    registers: dict[str, int]  # register -> length
+    boundary_length: int
+    cells: tuple[CellMeaning, ...]  # one per boundary cell entry, merged cells both listed
 
 
 @dataclass(frozen=True, eq=False)
