@@ -8,6 +8,7 @@ with vector bits written `NAME(3)`. All names are upper case (BSDL is case-insen
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 
 from ..diagnostics import SourceSpan
 
@@ -167,8 +168,17 @@ class DeviceModel:
             return ()
         return self.pin_maps.get(self.pin_map_name, {}).get(port_bit, ())
 
+    @cached_property
+    def cells_by_port(self) -> dict[str, tuple[BoundaryCell, ...]]:
+        """Boundary cells per port bit (an index: devices have thousands of cells)."""
+        index: dict[str, list[BoundaryCell]] = {}
+        for cell in self.cells:
+            if cell.port is not None:
+                index.setdefault(cell.port, []).append(cell)
+        return {port: tuple(cells) for port, cells in index.items()}
+
     def cells_of(self, port_bit: str) -> tuple[BoundaryCell, ...]:
-        return tuple(cell for cell in self.cells if cell.port == port_bit)
+        return self.cells_by_port.get(port_bit, ())
 
     def cell(self, number: int, function: str | None = None) -> BoundaryCell:
         """The cell with `number` (and `function`, for a merged cell)."""
