@@ -31,5 +31,31 @@ def main() -> None:
     """scanloom: compile boundary-scan (IEEE 1149.1) board tests into bit-exact scans."""
 
 
+@main.command("inspect", epilog=EXIT_CODES_HELP)
+@click.argument("board", type=click.Path(dir_okay=False))
+@click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
+def inspect_command(board: str, as_json: bool) -> None:
+    """Show the chain TDI -> TDO and the nets of BOARD, grouped by how they can be tested."""
+    import json
+
+    from .analysis.board_summary import board_summary, render_board_summary
+    from .diagnostics import Diagnostics
+    from .models.board_loader import load_board
+
+    diagnostics = Diagnostics()
+    try:
+        model = load_board(board, diagnostics)
+    except ScanloomError as error:
+        sys.exit(report_error(error))
+    summary = board_summary(model)
+    if as_json:
+        click.echo(json.dumps(summary, indent=2))
+    else:
+        click.echo(render_board_summary(summary, model), nl=False)
+    warnings = diagnostics.render()
+    if warnings:
+        click.echo(warnings, err=True)
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
