@@ -1,0 +1,65 @@
+"""The chain map: the fixed facts of the scan chain that every shift record refers to.
+
+Built once from a Board, it travels with the records so that writers, the listing and the
+independent replay can say what each bit means (device, register, cell, port, net) without
+going back to the BSDL files or the board file.
+"""
+
+from __future__ import annotations
+
+from ..models.board import Board, ChainDevice, PinRef
+from ..models.device import DeviceModel
+from .records import CellMeaning, ChainMap, DeviceMap
+
+__all__ = ["build_chain_map", "register_lengths"]
+
+# IEEE Std 1149.1 (clause on the device identification register, from memory: clause 12):
+# the DEVICE_ID register is 32 bits long.
+DEVICE_ID_LENGTH = 32
+
+
+def register_lengths(device: DeviceModel) -> dict[str, int]:
+    """Every register's length, with the standard's fixed lengths filled in where BSDL is silent.
+
+    BYPASS is a single cell (IEEE 1149.1, bypass register clause); BOUNDARY has
+    BOUNDARY_LENGTH cells; DEVICE_ID is 32 bits when IDCODE or USERCODE exists.
+    """
+    lengths = dict(device.registers)
+    lengths.setdefault("BYPASS", 1)
+    lengths.setdefault("BOUNDARY", device.boundary_length)
+    if device.idcode is not None or device.usercode is not None:
+        lengths.setdefault("DEVICE_ID", DEVICE_ID_LENGTH)
+    return lengths
+
+
+def _device_map(entry: ChainDevice, net_of_pin: dict[PinRef, str]) -> DeviceMap:
+    device = entry.device
+    cells = tuple(
+        CellMeaning(
+            number=cell.number,
+            cell_type=cell.cell_type,
+            function=cell.function,
+            port=cell.port,
+            net=net_of_pin.get(PinRef(entry.ref, cell.port)) if cell.port else None,
+        )
+        for cell in device.cells
+    )
+    return DeviceMap(
+        ref=entry.ref,
+        entity=device.entity,
+        position=entry.position,
+        ir_length=device.ir_length,
+        ir_capture=device.ir_capture,
+        idcode=device.idcode,
+        opcodes={name: tuple(codes) for name, codes in device.instructions.items()},
+        selects=dict(device.selects),
+        registers=register_lengths(device),
+        boundary_length=device.boundary_length,
+        cells=cells,
+    )
+
+
+def build_chain_map(board: Board) -> ChainMap:
+    """The chain in TDI -> TDO order, each boundary cell with its port and board net."""
+    net_of_pin = board.net_of_pin
+    return ChainMap(devices=tuple(_device_map(entry, net_of_pin) for entry in board.chain))
