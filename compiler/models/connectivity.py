@@ -129,9 +129,11 @@ def _series_groups(board: Board) -> dict[str, tuple[str, ...]]:
         if net in parent:
             groups.setdefault(find(net), []).append(net)
     for net in list(parent):
-        groups.setdefault(find(net), [])
-        if net not in groups[find(net)]:
-            groups[find(net)].append(net)
+        root = find(net)
+        members = groups.setdefault(root, [])
+        for member in (net, root):  # the root is never a key of `parent`: add it too
+            if member not in members:
+                members.append(member)
     out: dict[str, tuple[str, ...]] = {}
     for members in groups.values():
         ordered = tuple(n for n in board.nets if n in members)
