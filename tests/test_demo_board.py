@@ -153,12 +153,12 @@ def test_pin_map_covers_every_port_once(board: Board, ref: str) -> None:
 def test_u1_controller(board: Board) -> None:
     dev = device(board, "U1")
     assert dev.standard == "STD_1149_1_2001"
-    # 1149.1-2001 splits SAMPLE/PRELOAD into two instructions (8.6, 8.7, from memory).
+    # 1149.1-2001 clause 8 splits SAMPLE/PRELOAD into two instructions (from memory).
     assert {"SAMPLE", "PRELOAD"} <= set(dev.instructions)
     assert set(dev.instructions["SAMPLE"]).isdisjoint(dev.instructions["PRELOAD"])
     assert dev.idcode is not None and dev.usercode is not None
     assert dev.selects["IDCODE"] == dev.selects["USERCODE"] == "DEVICE_ID"
-    # 8.16 HIGHZ and 8.17 CLAMP select the bypass register (from memory).
+    # Clause 8, HIGHZ and CLAMP: both select the bypass register (from memory).
     assert dev.selects["HIGHZ"] == dev.selects["CLAMP"] == "BYPASS"
     assert dev.boundary_length > 200
     assert "USERCFG" in dev.public_instructions
@@ -188,7 +188,9 @@ def test_u2_valve_driver_1990_style(board: Board) -> None:
     # Eight outputs share one group enable, which controls nothing else.
     outputs = [cell for cell in dev.cells if cell.function == "OUTPUT3" and cell.port.startswith("VOUT")]
     assert sorted(cell.port for cell in outputs) == [f"VOUT({i})" for i in range(8)]
-    (group_enable,) = {cell.control_cell for cell in outputs}
+    enables = {cell.control_cell for cell in outputs}
+    assert len(enables) == 1, f"the outputs use enable cells {sorted(enables)}"
+    (group_enable,) = enables
     controlled = [cell for cell in dev.cells if cell.control_cell == group_enable]
     assert controlled == outputs
     assert any(cell.function == "INPUT" for cell in dev.cells)
