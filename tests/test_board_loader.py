@@ -86,7 +86,7 @@ VARIANTS = [
     ("duplicate net", "IN_ONLY: [U1.A(3)]", "IN_ONLY: [U1.A(3)]\n  D0: [U2.Y(3)]",
      r"'D0' appears twice in the same mapping", 23, 3),
     ("not YAML", "board: loader test board", "board: [unclosed",
-     r"the board file is not valid YAML", 3, 1),
+     r"the board file is not valid YAML", 3, 11),
     ("ref both device and part", "  U5:\n    pins: [A, B, Y]", "  U1:\n    pins: [A, B, Y]",
      r"'U1' is both a scan device and a part", 8, 3),
 ]
