@@ -10,7 +10,7 @@ import sys
 import click
 
 from . import __version__
-from .diagnostics import ScanloomError
+from .diagnostics import Diagnostics, ScanloomError
 
 EXIT_OK = 0
 EXIT_FAIL = 1
@@ -34,12 +34,12 @@ def main() -> None:
 @main.command("inspect", epilog=EXIT_CODES_HELP)
 @click.argument("board", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
-def inspect_command(board: str, as_json: bool) -> None:
+@click.option("--notes", is_flag=True, help="Also list the readers' notes (attributes not used ...).")
+def inspect_command(board: str, as_json: bool, notes: bool) -> None:
     """Show the chain TDI -> TDO and the nets of BOARD, grouped by how they can be tested."""
     import json
 
     from .analysis.board_summary import board_summary, render_board_summary
-    from .diagnostics import Diagnostics
     from .models.board_loader import load_board
 
     diagnostics = Diagnostics()
@@ -52,9 +52,105 @@ def inspect_command(board: str, as_json: bool) -> None:
         click.echo(json.dumps(summary, indent=2))
     else:
         click.echo(render_board_summary(summary, model), nl=False)
-    warnings = diagnostics.render()
-    if warnings:
-        click.echo(warnings, err=True)
+    report_diagnostics(diagnostics, notes=notes)
+
+
+def report_diagnostics(diagnostics: Diagnostics, *, notes: bool = False) -> None:
+    """Print warnings (and notes when asked) to stderr; count the notes otherwise."""
+    from .diagnostics import render_all
+
+    shown = [d for d in diagnostics.sorted() if notes or d.severity != "note"]
+    if shown:
+        click.echo(render_all(shown, diagnostics.sources), err=True)
+    hidden = sum(1 for d in diagnostics.items if d.severity == "note") if not notes else 0
+    if hidden:
+        click.echo(f"({hidden} notes; --notes lists them)", err=True)
+
+
+@main.command("check", epilog=EXIT_CODES_HELP)
+@click.argument("program", type=click.Path(dir_okay=False))
+@click.option("--board", "board", type=click.Path(dir_okay=False),
+              help="Use this board file instead of the one the program names.")
+@click.option("--strict", is_flag=True, help="Treat warnings as errors.")
+@click.option("--dump-ir", is_flag=True, help="Print the checked program's intermediate form as JSON.")
+def check_command(program: str, board: str | None, strict: bool, dump_ir: bool) -> None:
+    """Check PROGRAM (.loom) against its board: every diagnostic, sorted by position.
+
+    Exits 0 when there are no errors (warnings allowed), 1 when the program has errors,
+    2 when the program or its board cannot be read.
+    """
+    from pathlib import Path
+
+    from .diagnostics import Diagnostics
+    from .lang.frontend import UnreadableInput, dump_program, load_program
+
+    diagnostics = Diagnostics(strict=strict)
+    try:
+        checked, _ = load_program(program, diagnostics, board)
+    except UnreadableInput as error:
+        sys.exit(report_error(error))
+    except ScanloomError as error:
+        click.echo(error.render(), err=True)
+        sys.exit(EXIT_FAIL)
+    if diagnostics.items:
+        click.echo(diagnostics.render(), err=True)
+    if dump_ir:
+        click.echo(dump_program(checked, Path(program).parent), nl=False)
+    else:
+        steps = sum(len(test.steps) for test in checked.tests)
+        warnings = len(diagnostics.warnings)
+        click.echo(f"{program}: {len(checked.tests)} tests, {steps} steps, no errors"
+                   + (f", {warnings} warning{'s' * (warnings != 1)}" if warnings else ""))
+
+
+@main.command("fmt", epilog=EXIT_CODES_HELP)
+@click.argument("program", type=click.Path(dir_okay=False))
+@click.option("--check", "check_only", is_flag=True,
+              help="Change nothing; exit 1 when PROGRAM is not in canonical form.")
+@click.option("--write", is_flag=True, help="Rewrite PROGRAM in place.")
+def fmt_command(program: str, check_only: bool, write: bool) -> None:
+    """Print PROGRAM (.loom) in canonical form (comments kept), or check or rewrite it."""
+    from .diagnostics import Diagnostics, read_source
+    from .lang.fmt import format_text
+
+    try:
+        text = read_source(program)
+    except OSError as error:
+        diagnostics = Diagnostics()
+        diagnostics.error(f"cannot read program {program}: {error.strerror or error}")
+        sys.exit(report_error(ScanloomError(diagnostics.items)))
+    try:
+        formatted = format_text(text, program)
+    except ScanloomError as error:
+        click.echo(error.render(), err=True)
+        sys.exit(EXIT_FAIL)
+    if check_only:
+        if formatted != text:
+            click.echo(f"{program}: not in canonical form (run scanloom fmt --write)", err=True)
+            sys.exit(EXIT_FAIL)
+        return
+    if write:
+        if formatted != text:
+            _write_atomically(program, formatted)
+        return
+    click.echo(formatted, nl=False)
+
+
+def _write_atomically(path: str, text: str) -> None:
+    """Write through a temporary file in the same folder, then rename over the original."""
+    import os
+    import tempfile
+
+    folder = os.path.dirname(os.path.abspath(path))
+    handle, temporary = tempfile.mkstemp(dir=folder, prefix=".fmt-", suffix=".loom")
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
+            stream.write(text)
+        os.replace(temporary, path)
+    except BaseException:
+        if os.path.exists(temporary):
+            os.unlink(temporary)
+        raise
 
 
 if __name__ == "__main__":  # pragma: no cover
