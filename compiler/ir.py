@@ -154,6 +154,9 @@ class Program:
     end_state: str = "TEST_LOGIC_RESET"  # or RUN_TEST_IDLE when the program says so
     fight_limit_s: float = 1e-3
     span: SourceSpan | None = field(default=None, compare=False)
+    # Where header statements were written ("board", "tck", "fight limit", ...), for checks
+    # that report on them.
+    header_spans: dict[str, SourceSpan] = field(default_factory=dict, compare=False)
 
 
 def ir_to_data(node: Any, *, spans: bool = True) -> Any:
@@ -162,6 +165,8 @@ def ir_to_data(node: Any, *, spans: bool = True) -> Any:
         data: dict[str, Any] = {"kind": type(node).__name__}
         for f in fields(node):
             value = getattr(node, f.name)
+            if f.name == "header_spans":
+                continue
             if f.name == "span":
                 if spans and value is not None:
                     data["span"] = f"{value.line}:{value.column}"
