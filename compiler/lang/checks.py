@@ -1,0 +1,607 @@
+"""Semantic checks: every name resolved, every value fitted, every step checked against the board.
+
+The checker walks the tests in order with the modes in force, so that each step knows which
+instruction every device holds (after any register access chose its instruction) and can ask
+whether some device in a driving mode can drive what it drives, and whether some device in a
+capturing mode observes what it expects. It reports everything it finds and hands the lowering
+a plan: per step, the modes and the drives and expectations resolved to single nets or pins.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Iterable, Sequence
+
+from ..diagnostics import Diagnostics, SourceSpan, nearest
+from ..ir import Override
+from ..models.board import Board
+from . import ast
+from .includes import ProgramFiles
+from .resolve import BitRef, Scope, observes_pins
+from .values import DRIVE, EXPECT, READ, WRITE, frequency_in_hz, time_in_seconds, value_bits
+
+__all__ = [
+    "OVERRIDABLE_CHECKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
+    "WaitPlan", "TestPlan", "ProgramPlan", "check_program", "signal_text",
+]
+
+# Safety checks a test or step may knowingly override with `allow NAME "reason"`.
+OVERRIDABLE_CHECKS = ("contention", "never_drive", "hold", "floating", "short_fight", "compliance")
+
+DEFAULT_FIGHT_LIMIT_S = 1e-3
+END_STATES = {"reset": "TEST_LOGIC_RESET", "idle": "RUN_TEST_IDLE"}
+
+# One resolved bit of a drive or an expectation: (bit, value character, where it was written).
+BitValue = tuple[BitRef, str, "SourceSpan | None"]
+
+
+@dataclass(frozen=True, slots=True)
+class Header:
+    """The program-wide settings, from the main program's header."""
+
+    board_path: str | None
+    board_span: SourceSpan | None
+    tck_hz: Fraction | None
+    default_instruction: str
+    default_span: SourceSpan | None
+    end_state: str
+    fight_limit_s: float
+
+
+@dataclass(frozen=True, slots=True)
+class RegisterAccess:
+    ref: str
+    register: str
+    instruction: str
+    bits: str
+    span: SourceSpan | None
+
+
+@dataclass(frozen=True, slots=True)
+class StepPlan:
+    name: str
+    modes: tuple[tuple[str, str], ...]
+    drives: tuple[BitValue, ...]  # stated in this step, in the order written
+    expects: tuple[BitValue, ...]
+    writes: tuple[RegisterAccess, ...]
+    reads: tuple[RegisterAccess, ...]
+    wait_clocks: int
+    overrides: tuple[Override, ...]
+    span: SourceSpan | None
+
+
+@dataclass(frozen=True, slots=True)
+class WaitPlan:
+    clocks: int
+    modes: tuple[tuple[str, str], ...]
+    span: SourceSpan | None
+
+
+@dataclass(frozen=True, slots=True)
+class TestPlan:
+    name: str
+    title: str
+    items: tuple[StepPlan | WaitPlan, ...]
+    overrides: tuple[Override, ...]
+    span: SourceSpan | None
+
+
+@dataclass(frozen=True, slots=True)
+class ProgramPlan:
+    header: Header
+    tests: tuple[TestPlan, ...]
+
+
+def signal_text(signal: ast.Signal) -> str:
+    if isinstance(signal, ast.NameSignal):
+        return signal.name
+    if isinstance(signal, ast.PinSignal):
+        return signal.text
+    if signal.single:
+        return f"{signal.name}[{signal.high}]"
+    return f"{signal.name}[{signal.high}:{signal.low}]"
+
+
+# ---- header -------------------------------------------------------------------------------
+
+def read_header(items: Iterable[ast.TopItem], diagnostics: Diagnostics) -> Header:
+    """The settings of the main program; each may be given once."""
+    seen: dict[type, ast.TopItem] = {}
+    board_path = board_span = None
+    tck: Fraction | None = None
+    default, default_span = "BYPASS", None
+    end_state = "TEST_LOGIC_RESET"
+    fight = DEFAULT_FIGHT_LIMIT_S
+    for item in items:
+        if isinstance(item, (ast.GroupDecl, ast.Test, ast.IncludeDecl)):
+            continue
+        if type(item) in seen:
+            diagnostics.error(f"the program sets '{_setting(item)}' twice", item.span,
+                              hint=f"it is first set at {seen[type(item)].span}")
+            continue
+        seen[type(item)] = item
+        if isinstance(item, ast.BoardDecl):
+            board_path, board_span = item.path, item.span
+        elif isinstance(item, ast.TckDecl):
+            tck = frequency_in_hz(item.frequency, diagnostics)
+        elif isinstance(item, ast.DefaultModeDecl):
+            default, default_span = item.instruction.upper(), item.instruction_span
+        elif isinstance(item, ast.FinishDecl):
+            end_state = END_STATES[item.state]
+        elif isinstance(item, ast.FightLimitDecl):
+            duration = time_in_seconds(item.duration, diagnostics)
+            if duration is not None:
+                if duration[1] <= 0:
+                    diagnostics.error("the fight limit must be above zero", item.duration.span)
+                else:
+                    fight = float(duration[1])
+    return Header(board_path, board_span, tck, default, default_span, end_state, fight)
+
+
+def _setting(item: ast.TopItem) -> str:
+    return {ast.BoardDecl: "board", ast.TckDecl: "tck", ast.DefaultModeDecl: "default mode",
+            ast.FinishDecl: "finish in", ast.FightLimitDecl: "fight limit"}[type(item)]
+
+
+# ---- the program --------------------------------------------------------------------------
+
+def check_program(files: ProgramFiles, header: Header, board: Board,
+                  diagnostics: Diagnostics) -> ProgramPlan:
+    """Check every test against the board and return the plan the lowering turns into IR."""
+    scope = Scope(board)
+    scope.declare_groups((i for i in files.items if isinstance(i, ast.GroupDecl)), diagnostics)
+    default = _check_default(header, scope, diagnostics)
+    tests: list[TestPlan] = []
+    names: dict[str, ast.Test] = {}
+    for item in files.items:
+        if not isinstance(item, ast.Test):
+            continue
+        if item.name in names:
+            diagnostics.error(f"test {item.name} is declared twice", item.name_span,
+                              hint=f"the first is at {names[item.name].name_span}")
+        names.setdefault(item.name, item)
+        tests.append(_TestChecker(scope, header, default, diagnostics).check(item))
+    return ProgramPlan(header, tuple(tests))
+
+
+def _check_default(header: Header, scope: Scope, diagnostics: Diagnostics) -> str:
+    name = header.default_instruction
+    lacking = []
+    for ref, entry in scope.devices.items():
+        device = entry.device
+        if name not in device.instructions:
+            lacking.append(ref)
+        elif name in device.private:
+            diagnostics.error(f"{name} is a private instruction of {ref} ({device.entity})",
+                              header.default_span)
+            return "BYPASS"
+    if lacking:
+        pool = set().union(*(set(e.device.public_instructions) for e in scope.devices.values()))
+        diagnostics.error(f"the default instruction {name} is not an instruction of "
+                          f"{', '.join(lacking)}", header.default_span,
+                          hint="the default applies to every device a test does not name",
+                          suggestions=nearest(name, pool))
+        return "BYPASS"
+    return name
+
+
+class _TestChecker:
+    """Walks one test with the modes in force; collects the plan of its steps."""
+
+    def __init__(self, scope: Scope, header: Header, default: str, diagnostics: Diagnostics):
+        self.scope = scope
+        self.header = header
+        self.diag = diagnostics
+        self.modes: dict[str, str] = {ref: default for ref in scope.devices}
+        self.items: list[StepPlan | WaitPlan] = []
+        self.step_names: dict[str, SourceSpan | None] = {}
+        self.mode_keys: dict[tuple[tuple[str, str], ...], tuple[tuple[str, str], ...]] = {}
+        self.unused_modes: list[ast.ModeSet] = []
+        self.rows = 0  # rows of unnamed tables so far, numbered across the test
+
+    def modes_key(self, modes: dict[str, str]) -> tuple[tuple[str, str], ...]:
+        key = tuple(modes.items())
+        return self.mode_keys.setdefault(key, key)
+
+    def check(self, test: ast.Test) -> TestPlan:
+        overrides: list[Override] = []
+        for item in test.items:
+            if isinstance(item, ast.ModeSet):
+                self.mode_set(item)
+            elif isinstance(item, ast.Step):
+                self.name_step(item.name, item.name_span)
+                self.step(item.name, item.items, item.span)
+            elif isinstance(item, ast.Table):
+                self.table(item)
+            elif isinstance(item, ast.Wait):
+                clocks = self.wait_clocks(item)
+                if clocks is not None:
+                    self.items.append(WaitPlan(clocks, self.modes_key(self.modes), item.span))
+                    self.unused_modes.clear()
+            elif isinstance(item, (ast.Read, ast.Write)):
+                name = self.access_step_name(item)
+                self.step(name, (item,), item.span)
+            elif isinstance(item, ast.Allow):
+                override = self.allow(item)
+                if override is not None:
+                    overrides.append(override)
+            else:  # pragma: no cover - the parser builds only the kinds above
+                raise TypeError(f"unexpected test item {item!r}")
+        for mode_set in self.unused_modes:
+            self.diag.warning(f"setting {', '.join(mode_set.refs)} to {mode_set.instruction} has "
+                              f"no effect: no step follows in test {test.name}", mode_set.span)
+        if not self.items:
+            self.diag.warning(f"test {test.name} has no steps", test.name_span)
+        return TestPlan(test.name, test.title, tuple(self.items), tuple(overrides), test.span)
+
+    # ---- modes ------------------------------------------------------------------------------
+    def mode_set(self, item: ast.ModeSet) -> None:
+        seen: set[str] = set()
+        for ref, span in zip(item.refs, item.ref_spans):
+            if ref in seen:
+                self.diag.error(f"{ref} is named twice in one mode line", span)
+                continue
+            seen.add(ref)
+            if not self.scope.device_ref(ref, span, self.diag):
+                continue
+            instruction = self.scope.instruction(ref, item.instruction, item.instruction_span, self.diag)
+            if instruction is not None:
+                self.modes[ref] = instruction
+        self.unused_modes.append(item)
+
+    # ---- names ------------------------------------------------------------------------------
+    def name_step(self, name: str, span: SourceSpan | None) -> str:
+        if name in self.step_names:
+            self.diag.error(f"step {name} is declared twice in this test", span,
+                            hint=f"the first is at {self.step_names[name]}")
+        self.step_names.setdefault(name, span)
+        return name
+
+    def access_step_name(self, item: ast.Read | ast.Write) -> str:
+        base = f"{'read' if isinstance(item, ast.Read) else 'write'}_{item.ref}_{item.register}"
+        name, count = base, 1
+        while name in self.step_names:
+            count += 1
+            name = f"{base}_{count}"
+        self.step_names[name] = item.span
+        return name
+
+    # ---- waits and overrides ----------------------------------------------------------------
+    def wait_clocks(self, item: ast.Wait) -> int | None:
+        amount = time_in_seconds(item.amount, self.diag, allow_clocks=True)
+        if amount is None:
+            return None
+        unit, number = amount
+        if unit == "clocks":
+            return int(number)
+        if self.header.tck_hz is None:
+            self.diag.error(f"wait {item.amount.number} {item.amount.unit} needs the TCK frequency",
+                            item.amount.span, hint="declare it in the header, e.g. tck 10 MHz, "
+                                                   "or wait a number of clocks")
+            return None
+        return math.ceil(number * self.header.tck_hz)  # whole clocks, rounding up
+
+    def allow(self, item: ast.Allow) -> Override | None:
+        if item.check not in OVERRIDABLE_CHECKS:
+            self.diag.error(f"unknown safety check {item.check}", item.check_span,
+                            expected=", ".join(OVERRIDABLE_CHECKS),
+                            suggestions=nearest(item.check, OVERRIDABLE_CHECKS))
+            return None
+        if not item.reason.strip():
+            self.diag.error(f"allow {item.check} needs a reason", item.span,
+                            hint="say why the exception is safe; the listing repeats it")
+            return None
+        return Override(item.check, item.reason, item.span)
+
+    # ---- steps ------------------------------------------------------------------------------
+    def step(self, name: str, statements: Sequence[ast.StepItem], span: SourceSpan | None) -> None:
+        drives: list[tuple[ast.Signal, list[BitValue]]] = []
+        expects: list[tuple[ast.Signal, list[BitValue]]] = []
+        accesses: list[tuple[ast.Read | ast.Write, str]] = []
+        wait_clocks = 0
+        overrides: list[Override] = []
+        for statement in statements:
+            if isinstance(statement, ast.Drive):
+                for assignment in statement.assignments:
+                    self.assign(assignment.target, assignment.value, DRIVE, drives)
+            elif isinstance(statement, ast.Release):
+                for target in statement.targets:
+                    self.assign(target, ast.Released(target.span), DRIVE, drives)
+            elif isinstance(statement, ast.Expect):
+                for assignment in statement.assignments:
+                    self.assign(assignment.target, assignment.value, EXPECT, expects)
+            elif isinstance(statement, ast.Wait):
+                clocks = self.wait_clocks(statement)
+                wait_clocks += clocks or 0
+            elif isinstance(statement, (ast.Read, ast.Write)):
+                if self.scope.device_ref(statement.ref, statement.ref_span, self.diag):
+                    accesses.append((statement, self.modes[statement.ref]))
+            elif isinstance(statement, ast.Allow):
+                override = self.allow(statement)
+                if override is not None:
+                    overrides.append(override)
+            else:  # pragma: no cover
+                raise TypeError(f"unexpected step item {statement!r}")
+        modes = dict(self.modes)
+        writes, reads = self.register_accesses(accesses, modes)
+        key = self.modes_key(modes)
+        flat_drives = self.no_conflicts(drives, "drives", name)
+        flat_expects = self.no_conflicts(expects, "expects", name)
+        for signal, bits in drives:
+            self.check_drivable(signal, bits, key, modes)
+        for signal, bits in expects:
+            self.check_observed(signal, bits, modes)
+        self.items.append(StepPlan(name, key, flat_drives, flat_expects, tuple(writes),
+                                   tuple(reads), wait_clocks, tuple(overrides), span))
+        self.unused_modes.clear()
+
+    def assign(self, target: ast.Signal, value: ast.Value, role: str,
+               into: list[tuple[ast.Signal, list[BitValue]]]) -> None:
+        bits = self.scope.signal(target, self.diag)
+        if bits is None:
+            return
+        values = value_bits(value, len(bits), role, signal_text(target), self.diag)
+        if values is None:
+            return
+        span = value.span if value.span is not None else target.span
+        into.append((target, [(bit, char, span) for bit, char in zip(bits, values)]))
+
+    def no_conflicts(self, assigned: list[tuple[ast.Signal, list[BitValue]]], what: str,
+                     step: str) -> tuple[BitValue, ...]:
+        """Two different values for one net in one step is an error; repeats are merged."""
+        seen: dict[str, BitValue] = {}
+        flat: list[BitValue] = []
+        for _signal, bits in assigned:
+            for entry in bits:
+                bit, value, span = entry
+                previous = seen.get(bit.key)
+                if previous is None:
+                    seen[bit.key] = entry
+                    flat.append(entry)
+                elif previous[1] != value:
+                    verb = "driven" if what == "drives" else "expected"
+                    self.diag.error(f"{bit.key} is {verb} to two different values in step {step}: "
+                                    f"{previous[1]} and {value}", span,
+                                    hint=f"the other value is written at {previous[2]}")
+        return tuple(flat)
+
+    def check_drivable(self, signal: ast.Signal, bits: list[BitValue],
+                       key: tuple[tuple[str, str], ...], modes: dict[str, str]) -> None:
+        failing = [bit for bit, value, _ in bits
+                   if value != "Z" and self.scope.choose_driver(bit, key, modes) is None]
+        if not failing:
+            return
+        self.diag.error(self.cannot_drive_message(signal, failing, len(bits)), signal.span,
+                        hint=self.drive_hint(failing[0], modes))
+
+    def cannot_drive_message(self, signal: ast.Signal, failing: list[BitRef], width: int) -> str:
+        names = _names(failing)
+        of = f" ({len(failing)} of {width} bits of {signal_text(signal)})" if width > 1 else ""
+        if len(failing) == 1 and failing[0].is_pin:
+            return f"{failing[0].target} cannot be driven in this step"
+        return f"no device in a driving mode can drive {names}{of}"
+
+    def drive_hint(self, bit: BitRef, modes: dict[str, str]) -> str:
+        capable = self.scope.could_drive(bit)
+        if bit.is_pin and not capable:
+            ref = bit.target.split(".", 1)[0]
+            if modes[ref] == "INTEST":
+                return f"{bit.target} has no input cell whose core side INTEST drives"
+            return f"{bit.target} has no boundary cell that can drive it"
+        if not capable:
+            return f"no scan device on {bit.target} has an output cell"
+        where = ", ".join(f"{ref} (in {modes[ref]})" for ref in capable)
+        return f"{where} can drive it in EXTEST or CLAMP"
+
+    def check_observed(self, signal: ast.Signal, bits: list[BitValue], modes: dict[str, str]) -> None:
+        failing: list[BitRef] = []
+        bypassed: list[BitRef] = []
+        for bit, value, _ in bits:
+            if value == "X" or self.scope.observers(bit, modes):
+                continue
+            if bit.is_pin and modes[bit.target.split(".", 1)[0]] == "BYPASS" and \
+                    self.scope.could_observe(bit):
+                bypassed.append(bit)
+            else:
+                failing.append(bit)
+        if bypassed:
+            ref = bypassed[0].target.split(".", 1)[0]
+            self.diag.warning(f"the expectation on {_names(bypassed)} will be ignored: {ref} is in "
+                              f"BYPASS", signal.span,
+                              hint=f"set {ref} to SAMPLE or another instruction that selects its "
+                                   f"boundary register")
+        if not failing:
+            return
+        bit = failing[0]
+        if bit.is_pin and len(failing) == 1 and len(bits) == 1:
+            ref = bit.target.split(".", 1)[0]
+            device = self.scope.devices[ref].device
+            if not self.scope.could_observe(bit):
+                message = f"{bit.target} has no boundary cell that captures it"
+            elif not observes_pins(device, modes[ref]):
+                message = (f"{ref} is in {modes[ref]}, which does not capture pins: the expectation "
+                           f"on {bit.target} cannot be checked")
+            else:
+                message = f"{bit.target} is not captured by {ref} in {modes[ref]}"
+            self.diag.error(message, signal.span)
+            return
+        of = f" ({len(failing)} of {len(bits)} bits of {signal_text(signal)})" if len(bits) > 1 else ""
+        could = self.scope.could_observe(bit)
+        if could:
+            hint = ", ".join(f"{ref} (in {modes[ref]})" for ref in could) + \
+                " could capture it in SAMPLE or EXTEST"
+        else:
+            hint = f"no scan device on {bit.target} has a cell that captures it"
+        self.diag.error(f"no device in a capturing mode observes {_names(failing)}{of}",
+                        signal.span, hint=hint)
+
+    # ---- register access --------------------------------------------------------------------
+    def register_accesses(self, accesses: list[tuple[ast.Read | ast.Write, str]],
+                          modes: dict[str, str]) -> tuple[list[RegisterAccess], list[RegisterAccess]]:
+        writes: list[RegisterAccess] = []
+        reads: list[RegisterAccess] = []
+        chosen: dict[str, tuple[str, ast.Read | ast.Write]] = {}
+        for statement, mode in accesses:
+            ref = statement.ref
+            register = self.scope.register(ref, statement.register, statement.register_span, self.diag)
+            if register is None:
+                continue
+            instruction = self.select_instruction(statement, register, mode)
+            if instruction is None:
+                continue
+            if ref in chosen and chosen[ref][0] != instruction:
+                self.diag.error(f"{ref} cannot hold {chosen[ref][0]} and {instruction} in one step",
+                                statement.span, hint="access these registers in separate steps")
+                continue
+            chosen[ref] = (instruction, statement)
+            modes[ref] = instruction
+            device = self.scope.devices[ref].device
+            length = device.registers[register]
+            label = f"{ref} {register}"
+            if isinstance(statement, ast.Write):
+                bits = value_bits(statement.value, length, WRITE, label, self.diag)
+                if bits is not None:
+                    writes.append(RegisterAccess(ref, register, instruction, bits, statement.span))
+                continue
+            if statement.expected is None:
+                bits = self.default_read(statement, register, instruction, length)
+            else:
+                bits = value_bits(statement.expected, length, READ, label, self.diag)
+            if bits is not None:
+                reads.append(RegisterAccess(ref, register, instruction, bits, statement.span))
+        return writes, reads
+
+    def select_instruction(self, statement: ast.Read | ast.Write, register: str,
+                           mode: str) -> str | None:
+        """The instruction that selects `register`: the user's, the mode in force, or the BSDL's."""
+        ref = statement.ref
+        device = self.scope.devices[ref].device
+        if statement.using is not None:
+            instruction = self.scope.instruction(ref, statement.using, statement.using_span, self.diag)
+            if instruction is None:
+                return None
+            selected = device.selects.get(instruction)
+            if selected != register:
+                verb = "reads" if isinstance(statement, ast.Read) else "writes"
+                self.diag.error(f"{instruction} selects {selected}, not {register}: this {verb[:-1]} "
+                                f"of {ref} {register} cannot go through it", statement.using_span,
+                                suggestions=self.selecting(device, register))
+                return None
+            return instruction
+        if device.selects.get(mode) == register:
+            return mode
+        candidates = self.selecting(device, register)
+        if not candidates:
+            self.diag.error(f"no public instruction of {ref} ({device.entity}) selects {register}",
+                            statement.register_span)
+            return None
+        preferred = {"DEVICE_ID": ("IDCODE",), "BYPASS": ("BYPASS",),
+                     "BOUNDARY": ("SAMPLE", "PRELOAD") if isinstance(statement, ast.Read)
+                     else ("PRELOAD", "SAMPLE")}.get(register, ())
+        for name in preferred:
+            if name in candidates:
+                return name
+        return candidates[0]
+
+    @staticmethod
+    def selecting(device, register: str) -> tuple[str, ...]:
+        return tuple(name for name in device.public_instructions
+                     if device.selects.get(name) == register)
+
+    def default_read(self, statement: ast.Read, register: str, instruction: str,
+                     length: int) -> str | None:
+        device = self.scope.devices[statement.ref].device
+        pattern = None
+        if register == "DEVICE_ID":
+            pattern = device.usercode if instruction == "USERCODE" else device.idcode
+        elif register == "BYPASS":
+            pattern = "0"  # IEEE 1149.1: the bypass register captures 0
+        if pattern is None or len(pattern) != length:
+            self.diag.error(f"read {statement.ref} {register} needs an expected value", statement.span,
+                            hint="add expect 0b... (X for bits that do not matter)")
+            return None
+        return pattern
+
+    # ---- tables -----------------------------------------------------------------------------
+    def table(self, table: ast.Table) -> None:
+        if not table.drive_columns and not table.expect_columns:
+            self.diag.error("the table has no columns", table.header_span,
+                            expected="drive columns, '->', expect columns")
+            return
+        drive_cols = [self.scope.signal(s, self.diag) for s in table.drive_columns]
+        expect_cols = [self.scope.signal(s, self.diag) for s in table.expect_columns]
+        modes = dict(self.modes)
+        key = self.modes_key(modes)
+        for signal, bits in zip(table.drive_columns, drive_cols):
+            if bits is not None:
+                self.check_drivable(signal, [(b, "0", None) for b in bits], key, modes)
+        for signal, bits in zip(table.expect_columns, expect_cols):
+            if bits is not None:
+                self.check_observed(signal, [(b, "0", None) for b in bits], modes)
+        if any(c is None for c in drive_cols) or any(c is None for c in expect_cols):
+            return
+        overlapping_drives = _overlap(drive_cols)
+        overlapping_expects = _overlap(expect_cols)
+        memo: dict[tuple, str] = {}
+        n_drive, n_expect = len(drive_cols), len(expect_cols)
+        for number, row in enumerate(table.rows, start=1):
+            if table.name is None:
+                self.rows += 1
+                name = self.name_step(f"row{self.rows}", row.span)
+            else:
+                name = self.name_step(f"{table.name}_{number}", row.span)
+            if len(row.drives) != n_drive or len(row.expects) != n_expect:
+                self.diag.error(f"the row has {len(row.drives)} drive and {len(row.expects)} expect "
+                                f"cells; the table has {n_drive} and {n_expect} columns", row.span)
+                continue
+            drives = self.row_cells(row.drives, drive_cols, table.drive_columns, DRIVE, memo, 0)
+            expects = self.row_cells(row.expects, expect_cols, table.expect_columns, EXPECT, memo,
+                                     n_drive)
+            if drives is None or expects is None:
+                continue
+            flat_drives = tuple(v for col in drives for v in col[1])
+            flat_expects = tuple(v for col in expects for v in col[1])
+            if overlapping_drives:
+                flat_drives = self.no_conflicts(drives, "drives", name)
+            if overlapping_expects:
+                flat_expects = self.no_conflicts(expects, "expects", name)
+            self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span))
+        if table.rows:
+            self.unused_modes.clear()
+
+    def row_cells(self, cells: Sequence[ast.Value], columns: list, signals: Sequence[ast.Signal],
+                  role: str, memo: dict, offset: int) -> list[tuple[ast.Signal, list[BitValue]]] | None:
+        out: list[tuple[ast.Signal, list[BitValue]]] = []
+        ok = True
+        for index, (cell, bits, signal) in enumerate(zip(cells, columns, signals)):
+            memo_key = (offset + index, type(cell), getattr(cell, "radix", 0), getattr(cell, "digits", ""))
+            values = memo.get(memo_key)
+            if values is None:
+                values = value_bits(cell, len(bits), role, signal_text(signal), self.diag)
+                if values is None:
+                    ok = False
+                    continue
+                memo[memo_key] = values
+            span = cell.span
+            out.append((signal, [(bit, char, span) for bit, char in zip(bits, values)]))
+        return out if ok else None
+
+
+def _overlap(columns: list[tuple[BitRef, ...] | None]) -> bool:
+    keys: set[str] = set()
+    for bits in columns:
+        for bit in bits or ():
+            if bit.key in keys:
+                return True
+            keys.add(bit.key)
+    return False
+
+
+def _names(bits: Sequence[BitRef], limit: int = 4) -> str:
+    names = [b.target for b in bits]
+    if len(names) > limit:
+        return ", ".join(names[:limit]) + ", ..."
+    return ", ".join(names)
+
