@@ -48,6 +48,7 @@ class Header:
     default_span: SourceSpan | None
     end_state: str
     fight_limit_s: float
+    spans: dict[str, SourceSpan]  # header statement ("board", "tck", ...) -> where written
 
 
 @dataclass(frozen=True, slots=True)
@@ -114,14 +115,17 @@ def read_header(items: Iterable[ast.TopItem], diagnostics: Diagnostics) -> Heade
     default, default_span = "BYPASS", None
     end_state = "TEST_LOGIC_RESET"
     fight = DEFAULT_FIGHT_LIMIT_S
+    spans: dict[str, SourceSpan] = {}
     for item in items:
         if isinstance(item, (ast.GroupDecl, ast.Test, ast.IncludeDecl)):
             continue
         if type(item) in seen:
-            diagnostics.error(f"the program sets '{_setting(item)}' twice", item.span,
+            diagnostics.error(f"the program sets {_setting(item)} twice", item.span,
                               hint=f"it is first set at {seen[type(item)].span}")
             continue
         seen[type(item)] = item
+        if item.span is not None:
+            spans[_setting(item)] = item.span
         if isinstance(item, ast.BoardDecl):
             board_path, board_span = item.path, item.span
         elif isinstance(item, ast.TckDecl):
@@ -137,12 +141,12 @@ def read_header(items: Iterable[ast.TopItem], diagnostics: Diagnostics) -> Heade
                     diagnostics.error("the fight limit must be above zero", item.duration.span)
                 else:
                     fight = float(duration[1])
-    return Header(board_path, board_span, tck, default, default_span, end_state, fight)
+    return Header(board_path, board_span, tck, default, default_span, end_state, fight, spans)
 
 
 def _setting(item: ast.TopItem) -> str:
     return {ast.BoardDecl: "board", ast.TckDecl: "tck", ast.DefaultModeDecl: "default mode",
-            ast.FinishDecl: "finish in", ast.FightLimitDecl: "fight limit"}[type(item)]
+            ast.FinishDecl: "finish", ast.FightLimitDecl: "fight limit"}[type(item)]
 
 
 # ---- the program --------------------------------------------------------------------------

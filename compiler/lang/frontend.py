@@ -68,7 +68,8 @@ def load_program(path: str | Path, diagnostics: Diagnostics,
         raise UnreadableInput(error.diagnostics, error.sources) from None
     plan = check_program(files, header, board, diagnostics)
     diagnostics.raise_if_errors()
-    program = lower_program(plan, board, str(path.resolve()), str(Path(board.path).resolve()))
+    program = lower_program(plan, board, str(path.resolve()), str(Path(board.path).resolve()),
+                            root.span)
     return program, board
 
 
@@ -85,7 +86,7 @@ def compile_source(text: str, file: str, board: Board, diagnostics: Diagnostics)
     diagnostics.raise_if_errors()
     plan = check_program(files, header, board, diagnostics)
     diagnostics.raise_if_errors()
-    return lower_program(plan, board, file, board.path)
+    return lower_program(plan, board, file, board.path, root.span)
 
 
 def dump_program(program: Program, base: str | Path) -> str:

@@ -9,6 +9,7 @@ step was already checked; one that persists from an earlier step simply waits fo
 
 from __future__ import annotations
 
+from ..diagnostics import SourceSpan
 from ..ir import Drive, Expect, Program, RegisterRead, RegisterWrite, Step, Test, TestItem, Wait
 from ..models.board import Board
 from .checks import BitValue, ProgramPlan, StepPlan, TestPlan, WaitPlan
@@ -17,14 +18,15 @@ from .resolve import Scope
 __all__ = ["lower_program"]
 
 
-def lower_program(plan: ProgramPlan, board: Board, source: str, board_path: str) -> Program:
+def lower_program(plan: ProgramPlan, board: Board, source: str, board_path: str,
+                  span: SourceSpan | None = None) -> Program:
     """The IR of a checked program; `source` and `board_path` as the caller wants them shown."""
     scope = Scope(board)
     header = plan.header
     tests = tuple(_lower_test(test, scope) for test in plan.tests)
     tck = float(header.tck_hz) if header.tck_hz is not None else None
     return Program(source, board_path, tck, header.default_instruction, tests, header.end_state,
-                   header.fight_limit_s)
+                   header.fight_limit_s, span, dict(header.spans))
 
 
 def _lower_test(test: TestPlan, scope: Scope) -> Test:
