@@ -11,6 +11,7 @@ from hypothesis import strategies as st
 
 from handbuilt import (
     dr_scan,
+    two_device_program,
     idle_record,
     ir_scan,
     make_device_map,
@@ -25,29 +26,6 @@ from scanloom.backend.records import DR_SCAN, IR_SCAN, ChainMap, ShiftRecord
 from scanloom.backend.tap import UNKNOWN_STATE_CODE, TapState, walk
 
 S = TapState
-
-
-def two_device_program():
-    """U1 (nearest TDI, IR 2 bits, boundary 3 cells) and U2 (nearest TDO, IR 3, boundary 2).
-
-    IR scan: U1 SAMPLE "01", U2 EXTEST "000". Scan order is nearest TDO first, each register
-    bit 0 first: U2's "000" reversed = 0,0,0 then U1's "01" reversed = 1,0 -> TDI 0,0,0,1,0.
-    Expected: U2 capture "X01" reversed = 1,0,X and U1 "01" reversed = 1,0 -> TDO 1,0,X,1,0.
-    DR scan (both select BOUNDARY): U2 image "10" reversed = 0,1; U1 "110" reversed = 0,1,1
-    -> TDI 0,1,0,1,1. Expected U2 "X1" -> 1,X; U1 "0XX" -> X,X,0 -> TDO 1,X,X,X,0. Then two
-    idle clocks, and a reset at the end.
-    """
-    u1 = make_device_map("U1", 0, 2, boundary_length=3, ir_capture="01")
-    u2 = make_device_map("U2", 1, 3, boundary_length=2, ir_capture="X01")
-    chain = ChainMap((u1, u2))
-    records = [
-        reset_record(),
-        ir_scan(chain, {"U1": "SAMPLE", "U2": "EXTEST"}),
-        dr_scan(chain, {"U1": "BOUNDARY", "U2": "BOUNDARY"}, {"U1": "110", "U2": "10"},
-                {"U1": "0XX", "U2": "X1"}, idle_clocks=2),
-        reset_record(),
-    ]
-    return make_program(chain, records)
 
 
 def test_two_device_program_cycle_by_cycle() -> None:

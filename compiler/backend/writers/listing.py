@@ -1,0 +1,204 @@
+"""The listing `DIR/<stem>.txt`: the program's scans for a person to read, per test and step.
+
+For every record: what it is for, its cycles, its TDI, expected TDO and mask in hex (bit 0 =
+first bit shifted = least significant bit, as in the shift file), what it leaves in each
+device (instruction or register image), and every compared bit by device, register, cell,
+port and net. The head states the TCK count against the lower bound for the scan sequence.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Iterable, Sequence
+
+from ..cycle_stream import CycleStream
+from ..hexbits import bits_to_hex
+from ..records import DR_SCAN, IDLE, IR_SCAN, RESET, CellMeaning, DeviceMap, ScanProgram, ShiftRecord
+from ..tap import UNKNOWN_STATE_CODE, TapState, next_state, state_code_name, state_from_name
+from .atomic import write_atomically
+from .json_writer import relative_posix
+
+__all__ = ["render_listing", "write_listing"]
+
+_WRAP = 64  # hex digits or image characters per line
+_KIND_WORDS = {RESET: "reset", IR_SCAN: "instruction scan", DR_SCAN: "data scan", IDLE: "idle"}
+
+
+def _frequency(hz: float | None) -> str:
+    if hz is None:
+        return "not declared (waveform drawn at 1 MHz)"
+    for scale, unit in ((1e6, "MHz"), (1e3, "kHz")):
+        if hz >= scale:
+            return f"{hz / scale:g} {unit}"
+    return f"{hz:g} Hz"
+
+
+def _wrapped(label: str, text: str, indent: str) -> list[str]:
+    """`label text`, the text cut into lines of _WRAP characters under one another."""
+    if not text:
+        return [f"{indent}{label}(none)"]
+    pad = " " * len(label)
+    chunks = [text[i:i + _WRAP] for i in range(0, len(text), _WRAP)]
+    return [f"{indent}{label if n == 0 else pad}{chunk}" for n, chunk in enumerate(chunks)]
+
+
+def _span(first: int, count: int) -> str:
+    if count <= 0:
+        return f"no cycles (at cycle {first})"
+    if count == 1:
+        return f"cycle {first}"
+    return f"cycles {first}-{first + count - 1}"
+
+
+class _ChainLabels:
+    """What each device bit is called; a register's labels are built once, on first use."""
+
+    def __init__(self, devices: Sequence[DeviceMap]) -> None:
+        self.devices = {device.ref: device for device in devices}
+        self._labels: dict[tuple[str, str], list[str]] = {}
+
+    def labels(self, ref: str, register: str, length: int) -> list[str]:
+        key = (ref, register)
+        known = self._labels.get(key)
+        if known is None or len(known) < length:
+            known = self._labels[key] = self._build(ref, register, length)
+        return known
+
+    def _build(self, ref: str, register: str, length: int) -> list[str]:
+        if register != "BOUNDARY" or ref not in self.devices:
+            return [f"{ref} {register} bit {bit}" for bit in range(length)]
+        by_number: dict[int, list[CellMeaning]] = {}
+        for cell in self.devices[ref].cells:
+            by_number.setdefault(cell.number, []).append(cell)
+        labels = []
+        for bit in range(length):
+            roles = "; ".join(
+                f"{cell.cell_type} {cell.function}"
+                + (f" port {cell.port}" if cell.port else " internal")
+                + (f" net {cell.net}" if cell.net else "")
+                for cell in by_number.get(bit, [])
+            )
+            labels.append(f"{ref} BOUNDARY cell {bit}" + (f" ({roles})" if roles else ""))
+        return labels
+
+
+def _where_it_ends(record: ShiftRecord, end: int, cycles: CycleStream) -> str:
+    """Where the record leaves the TAP: its rest state, or the state the next record starts from."""
+    rest = state_from_name(record.end_state)
+    if end < cycles.count:
+        code = cycles.state_names[end]
+    elif cycles.count and cycles.state_names[-1] != UNKNOWN_STATE_CODE:
+        code = int(next_state(TapState(cycles.state_names[-1]), cycles.tms[-1]))
+    else:
+        code = UNKNOWN_STATE_CODE
+    if code == rest:
+        return f"rests in {rest.standard_name}"
+    return f"goes on from {state_code_name(code)} to the next record (rest state {rest.standard_name})"
+
+
+def _record_lines(index: int, record: ShiftRecord, start: int, end: int, shift_start: int | None,
+                  labels: _ChainLabels, chain: Sequence[DeviceMap], cycles: CycleStream) -> list[str]:
+    words = _KIND_WORDS.get(record.kind, record.kind)
+    head = f"  record {index}: {words}"
+    if record.purpose:
+        head += f" ({record.purpose})"
+    if record.kind in (IR_SCAN, DR_SCAN):
+        head += f", {record.length} bits"
+    head += f", {_span(start, end - start)}"
+    lines = [head]
+    if record.kind == RESET:
+        trst = " with TRST asserted by the player as well" if record.use_trst else ""
+        lines.append(f"    five clocks with TMS=1 to Test-Logic-Reset{trst}")
+    if shift_start is not None:
+        state = "Shift-IR" if record.kind == IR_SCAN else "Shift-DR"
+        lines.append(f"    {state} from cycle {shift_start} to {shift_start + record.length - 1}")
+    if record.idle_clocks:
+        lines.append(f"    then {record.idle_clocks} clocks in Run-Test/Idle")
+    lines.append(f"    {_where_it_ends(record, end, cycles)}")
+    if record.kind not in (IR_SCAN, DR_SCAN):
+        return lines
+    lines += _wrapped("TDI   ", bits_to_hex(record.tdi), "    ")
+    lines += _wrapped("TDO   ", bits_to_hex(record.tdo), "    ")
+    lines += _wrapped("mask  ", bits_to_hex(record.mask), "    ")
+    segments = {segment.device: segment for segment in record.segments}
+    checks: dict[str, list[str]] = {}
+    for check in record.checks:
+        checks.setdefault(check.device, []).append(f"{check.test}/{check.step}")
+    for device in chain:
+        segment = segments.get(device.ref)
+        if segment is None:
+            continue
+        last = segment.offset + segment.length - 1
+        place = f"bits {segment.offset}-{last}" if segment.length > 1 else f"bit {segment.offset}"
+        line = f"    {device.ref}: {segment.register}, scan {place}"
+        intent = record.intent.get(device.ref)
+        if record.kind == IR_SCAN and intent is not None:
+            line += f", instruction {intent}"
+        if device.ref in checks:
+            line += ", checks " + ", ".join(checks[device.ref])
+        lines.append(line)
+        if record.kind == DR_SCAN and intent is not None:
+            lines += _wrapped("image ", intent, "      ")
+    compared = list(_compared_bits(record, labels))
+    if compared:
+        lines.append(f"    compared bits ({len(compared)}):")
+        lines += compared
+    return lines
+
+
+def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> Iterable[str]:
+    tdo = record.tdo
+    for segment in sorted(record.segments, key=lambda s: s.offset):
+        offset = segment.offset
+        window = record.mask[offset:offset + segment.length]
+        names = labels.labels(segment.device, segment.register, segment.length)
+        for bit in window.search(1):
+            yield f"      scan bit {offset + bit}: expect {tdo[offset + bit]}  {names[bit]}"
+
+
+def render_listing(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> str:
+    """The listing's text (paths relative to `out_dir`)."""
+    chain = program.chain.devices
+    labels = _ChainLabels(chain)
+    excess = cycles.count - cycles.lower_bound
+    if excess == 0:
+        verdict = f"equal to the lower bound for this scan sequence ({cycles.lower_bound})"
+    else:
+        verdict = f"{excess} more than the lower bound for this scan sequence ({cycles.lower_bound})"
+    lines = [
+        "scanloom listing: shift records and TAP cycles",
+        f"program     {relative_posix(program.source, out_dir) or '(none)'}",
+        f"board       {relative_posix(program.board, out_dir) or '(none)'}",
+        f"TCK         {_frequency(program.tck_hz)}",
+        f"TCK count   {cycles.count}, {verdict}",
+        "bit order   hex with bit 0 = first bit shifted = least significant bit;",
+        "            images and instructions as in BSDL, leftmost bit nearest TDI",
+        "",
+        "chain, from TDI to TDO:",
+    ]
+    for device in chain:
+        idcode = f", IDCODE {device.idcode}" if device.idcode else ""
+        lines.append(f"  {device.position}: {device.ref} ({device.entity}), IR {device.ir_length} bits, "
+                     f"capture {device.ir_capture}, boundary {device.boundary_length} cells{idcode}")
+    lines += [f"note: {note}" for note in program.notes]
+    shift_starts = iter(cycles.shift_starts)
+    ends = list(cycles.record_starts[1:]) + [cycles.count]
+    place: tuple[str | None, str | None] | None = None
+    for index, record in enumerate(program.records):
+        if place is None or record.test != place[0]:
+            lines += ["", f"test {record.test}" if record.test else "outside any test"]
+            place = (record.test, None)
+        if record.step and record.step != place[1]:
+            lines.append(f" step {record.step}")
+        place = (record.test, record.step or place[1])
+        shift_start = next(shift_starts) if record.kind in (IR_SCAN, DR_SCAN) else None
+        lines += _record_lines(index, record, cycles.record_starts[index], ends[index], shift_start,
+                               labels, chain, cycles)
+    lines += ["", f"end: {cycles.count} TCK, {verdict}"]
+    return "\n".join(lines) + "\n"
+
+
+def write_listing(program: ScanProgram, cycles: CycleStream, path: Path) -> Path:
+    """Write the listing to `path` atomically."""
+    path = Path(path)
+    return write_atomically(path, render_listing(program, cycles, path.parent))
