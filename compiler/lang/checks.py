@@ -17,6 +17,7 @@ from typing import Iterable, Sequence
 from ..diagnostics import Diagnostics, SourceSpan, nearest
 from ..ir import Override
 from ..models.board import Board
+from ..safety_checks import CHECKS as SAFETY_CHECKS
 from . import ast
 from .includes import ProgramFiles
 from .resolve import BitRef, Scope, observes_pins
@@ -28,7 +29,7 @@ __all__ = [
 ]
 
 # Safety checks a test or step may knowingly override with `allow NAME "reason"`.
-OVERRIDABLE_CHECKS = ("contention", "never_drive", "hold", "floating", "short_fight", "compliance")
+OVERRIDABLE_CHECKS = tuple(SAFETY_CHECKS)  # the pre-hardware checks a program may allow
 
 DEFAULT_FIGHT_LIMIT_S = 1e-3
 END_STATES = {"reset": "TEST_LOGIC_RESET", "idle": "RUN_TEST_IDLE"}

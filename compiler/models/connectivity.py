@@ -15,7 +15,7 @@ from .board import Board, Net, PinRef
 from .cells import PIN, resolve_capture
 from .device import DRIVER_FUNCTIONS, RECEIVER_FUNCTIONS, BoundaryCell, DeviceModel
 
-__all__ = ["NetRoles", "net_roles", "pin_can_drive", "pin_can_receive", "receiver_cells",
+__all__ = ["NetRoles", "net_roles", "series_groups", "pin_can_drive", "pin_can_receive", "receiver_cells",
            "driver_cells", "NET_KINDS"]
 
 NET_KINDS = ("scan-to-scan", "cluster", "drive-only", "observe-only", "untestable")
@@ -61,7 +61,7 @@ def pin_can_receive(board: Board, pin: PinRef) -> bool:
 
 def net_roles(board: Board) -> dict[str, NetRoles]:
     """Roles of every net, in board order, with the kind of its electrical node."""
-    groups = _series_groups(board)
+    groups = series_groups(board)
     logic_refs = {ref for ref, part in board.parts.items() if part.is_logic}
     per_net: dict[str, tuple[tuple[PinRef, ...], tuple[PinRef, ...], tuple[PinRef, ...]]] = {}
     for net in board.nets.values():
@@ -108,7 +108,7 @@ def _pin_roles(device: DeviceModel, port: str) -> tuple[bool, bool]:
     return bool(driver_cells(device, port)), bool(receiver_cells(device, port))
 
 
-def _series_groups(board: Board) -> dict[str, tuple[str, ...]]:
+def series_groups(board: Board) -> dict[str, tuple[str, ...]]:
     """Nets joined through series parts, as groups (only nets that are joined appear)."""
     parent: dict[str, str] = {}
 

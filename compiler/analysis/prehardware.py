@@ -1,0 +1,75 @@
+"""Pre-hardware checks: everything that must hold before a program touches a board.
+
+`check_program` runs on a checked program (IR) and its board, and on the scheduled records
+when there are some; `check_records` runs on shift records alone (JSON from elsewhere). An
+intentional case is accepted by `allow CHECK "reason"` in the test or step; the reason is kept
+so the listing can repeat it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from ..backend.records import ScanProgram
+from ..diagnostics import Diagnostic, Diagnostics
+from ..ir import Program
+from ..models.board import Board
+from ..safety_checks import CHECKS, Finding
+from .drive_hazards import check_drive_hazards
+from .sequencing import check_compliance, check_preload, check_self_test_idle, check_tck
+
+__all__ = ["CheckReport", "check_program", "check_records", "report_findings"]
+
+
+@dataclass
+class CheckReport:
+    findings: list[Finding] = field(default_factory=list)
+    allowed: list[tuple[Finding, str]] = field(default_factory=list)  # (finding, reason)
+
+    def allowed_notes(self) -> list[str]:
+        return [f"allowed {f.check} in test {f.test}"
+                + (f" step {f.step}" if f.step else "") + f": {reason} ({f.message})"
+                for f, reason in self.allowed]
+
+
+def check_program(program: Program, board: Board, scan: ScanProgram | None = None) -> CheckReport:
+    findings: list[Finding] = []
+    findings += check_tck(program, board)
+    findings += check_compliance(program, board)
+    findings += check_self_test_idle(program, board)
+    findings += check_drive_hazards(program, board)
+    if scan is not None:
+        findings += check_preload(scan)
+    return _apply_overrides(program, findings)
+
+
+def check_records(scan: ScanProgram) -> CheckReport:
+    return CheckReport(check_preload(scan))
+
+
+def _apply_overrides(program: Program, findings: list[Finding]) -> CheckReport:
+    overrides: dict[tuple[str | None, str | None, str], str] = {}
+    for test in program.tests:
+        for o in test.overrides:
+            overrides[(test.name, None, o.check)] = o.reason
+        for step in test.steps:
+            for o in step.overrides:
+                overrides[(test.name, step.name, o.check)] = o.reason
+    report = CheckReport()
+    for finding in findings:
+        reason = overrides.get((finding.test, finding.step, finding.check)) \
+            or overrides.get((finding.test, None, finding.check))
+        if reason is not None:
+            report.allowed.append((finding, reason))
+        else:
+            report.findings.append(finding)
+    return report
+
+
+def report_findings(report: CheckReport, diagnostics: Diagnostics) -> None:
+    """Findings as diagnostics: the check's severity, its name as the code, its hint."""
+    for finding in report.findings:
+        kind = CHECKS[finding.check]
+        message = f"[{kind.name}] {finding.message}"
+        diagnostics.report(Diagnostic(kind.severity, message, finding.span, None, (),
+                                      finding.hint or kind.hint, kind.name))
