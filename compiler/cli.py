@@ -81,12 +81,12 @@ def check_command(program: str, board: str | None, strict: bool, dump_ir: bool) 
     """
     from pathlib import Path
 
-    from .diagnostics import Diagnostics
-    from .lang.frontend import UnreadableInput, dump_program, load_program
+    from .lang.frontend import UnreadableInput, dump_program
+    from .pipeline import check_source_program
 
     diagnostics = Diagnostics(strict=strict)
     try:
-        checked, _ = load_program(program, diagnostics, board)
+        checked = check_source_program(program, diagnostics, board).program
     except UnreadableInput as error:
         sys.exit(report_error(error))
     except ScanloomError as error:
@@ -96,11 +96,57 @@ def check_command(program: str, board: str | None, strict: bool, dump_ir: bool) 
         click.echo(diagnostics.render(), err=True)
     if dump_ir:
         click.echo(dump_program(checked, Path(program).parent), nl=False)
-    else:
+    if diagnostics.has_errors():
+        sys.exit(EXIT_FAIL)
+    if not dump_ir:
         steps = sum(len(test.steps) for test in checked.tests)
         warnings = len(diagnostics.warnings)
         click.echo(f"{program}: {len(checked.tests)} tests, {steps} steps, no errors"
                    + (f", {warnings} warning{'s' * (warnings != 1)}" if warnings else ""))
+
+
+@main.command("compile", epilog=EXIT_CODES_HELP)
+@click.argument("program", type=click.Path(dir_okay=False))
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False),
+              help="Folder for the output files (created if missing).")
+@click.option("--format", "formats", default="json,cycles,vcd,listing", show_default=True,
+              help="Comma-separated output formats: json, cycles, vcd, listing.")
+@click.option("--board", "board", type=click.Path(dir_okay=False),
+              help="Use this board file instead of the one the program names.")
+@click.option("--strict", is_flag=True, help="Treat warnings as errors.")
+def compile_command(program: str, out_dir: str, formats: str, board: str | None, strict: bool) -> None:
+    """Compile PROGRAM (.loom) into bit-exact shift records, TAP cycles, VCD and a listing.
+
+    Refuses (exit 1) when the program has errors, including the pre-hardware safety checks;
+    every compile ends with an independent replay of the cycles it wrote.
+    """
+    from .backend.writers import check_formats
+    from .lang.frontend import UnreadableInput
+    from .pipeline import CompilerBug, compile_program
+
+    diagnostics = Diagnostics(strict=strict)
+    try:
+        wanted = check_formats(f.strip() for f in formats.split(",") if f.strip())
+        result = compile_program(program, out_dir, wanted, diagnostics, board)
+    except UnreadableInput as error:
+        sys.exit(report_error(error))
+    except CompilerBug as error:
+        click.echo(error.render(), err=True)
+        sys.exit(EXIT_FAIL)
+    except ScanloomError as error:
+        click.echo(error.render(), err=True)
+        if diagnostics.has_errors() or any(d.span for d in error.diagnostics):
+            click.echo(f"{program}: not compiled: the program has errors", err=True)
+            sys.exit(EXIT_FAIL)
+        sys.exit(EXIT_BAD_INPUT)
+    if diagnostics.items:
+        click.echo(diagnostics.render(), err=True)
+    cycles = result.cycles
+    bound = "equals" if cycles.count == cycles.lower_bound else f"exceeds by {cycles.count - cycles.lower_bound}"
+    click.echo(f"{program}: {len(result.checked.scan.records)} records, {cycles.count} TCK "
+               f"({bound} the lower bound); {result.replay.summary()}")
+    for path in result.written:
+        click.echo(f"  wrote {path}")
 
 
 @main.command("fmt", epilog=EXIT_CODES_HELP)

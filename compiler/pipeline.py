@@ -1,0 +1,87 @@
+"""The whole pipeline for one program: front end, checks, schedule, cycles, replay, writers.
+
+`check_source_program` is what `scanloom check` runs; `compile_program` is `scanloom
+compile`: it refuses on errors, lays out the TAP cycles, replays them independently (a
+mismatch there is a compiler bug and stops the compile loudly) and writes the outputs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+from .analysis.prehardware import CheckReport, check_program, report_findings
+from .backend.cycle_stream import CycleStream
+from .backend.cycles import lay_out_cycles
+from .backend.records import ScanProgram
+from .backend.schedule import schedule
+from .diagnostics import Diagnostic, Diagnostics, ScanloomError
+from .ir import COMPUTED, Program
+from .lang.frontend import load_program
+from .models.board import Board
+from .sim.replay import ReplayReport, replay
+
+__all__ = ["CheckedProgram", "CompileResult", "CompilerBug", "check_source_program", "compile_program"]
+
+
+class CompilerBug(ScanloomError):
+    """The independent replay disagrees with the scheduled records: scanloom is wrong."""
+
+
+@dataclass
+class CheckedProgram:
+    program: Program
+    board: Board
+    scan: ScanProgram
+    report: CheckReport
+
+
+@dataclass
+class CompileResult:
+    checked: CheckedProgram
+    cycles: CycleStream
+    replay: ReplayReport
+    written: list[Path] = field(default_factory=list)
+
+
+def _computed_expectations(program: Program, board: Board) -> dict[tuple[str, str, str], str]:
+    """Values for `computed` expectations, from the fault-free virtual board."""
+    needs = any(e.value == COMPUTED for t in program.tests for s in t.steps for e in s.expects)
+    if not needs:
+        return {}
+    from .analysis.computed import compute_expectations
+
+    return dict(compute_expectations(program, board))
+
+
+def check_source_program(path: str | Path, diagnostics: Diagnostics,
+                         board_override: str | Path | None = None) -> CheckedProgram:
+    """Front end, computed expectations, schedule and the pre-hardware checks.
+
+    Front-end errors raise; pre-hardware findings go into `diagnostics` (the caller decides).
+    """
+    program, board = load_program(path, diagnostics, board_override)
+    computed = _computed_expectations(program, board)
+    scan = schedule(program, board, computed)
+    report = check_program(program, board, scan)
+    report_findings(report, diagnostics)
+    notes = tuple(scan.notes) + tuple(report.allowed_notes())
+    scan = replace(scan, notes=notes)
+    return CheckedProgram(program, board, scan, report)
+
+
+def compile_program(path: str | Path, out_dir: str | Path, formats: set[str], diagnostics: Diagnostics,
+                    board_override: str | Path | None = None) -> CompileResult:
+    checked = check_source_program(path, diagnostics, board_override)
+    diagnostics.raise_if_errors()
+    cycles = lay_out_cycles(checked.scan)
+    report = replay(checked.scan, cycles)
+    if not report.ok:
+        raise CompilerBug([Diagnostic(
+            "error", "internal error: the independent replay disagrees with the compiled scans",
+            hint="this is a scanloom bug; please report it with the program and board\n"
+                 + report.render(limit=20))])
+    from .backend.writers import write_outputs
+
+    written = write_outputs(checked.scan, cycles, Path(out_dir), Path(path).stem, formats)
+    return CompileResult(checked, cycles, report, written)
