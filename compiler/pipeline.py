@@ -11,6 +11,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from .analysis.prehardware import CheckReport, check_program, report_findings
+from .analysis.sequencing import check_preload
 from .backend.cycle_stream import CycleStream
 from .backend.cycles import lay_out_cycles
 from .backend.records import ScanProgram
@@ -32,13 +33,13 @@ class CompilerBug(ScanloomError):
 class CheckedProgram:
     program: Program
     board: Board
-    scan: ScanProgram
     report: CheckReport
 
 
 @dataclass
 class CompileResult:
     checked: CheckedProgram
+    scan: ScanProgram
     cycles: CycleStream
     replay: ReplayReport
     written: list[Path] = field(default_factory=list)
@@ -56,32 +57,32 @@ def _computed_expectations(program: Program, board: Board) -> dict[tuple[str, st
 
 def check_source_program(path: str | Path, diagnostics: Diagnostics,
                          board_override: str | Path | None = None) -> CheckedProgram:
-    """Front end, computed expectations, schedule and the pre-hardware checks.
+    """The front end and the pre-hardware checks.
 
     Front-end errors raise; pre-hardware findings go into `diagnostics` (the caller decides).
     """
     program, board = load_program(path, diagnostics, board_override)
-    computed = _computed_expectations(program, board)
-    scan = schedule(program, board, computed)
-    report = check_program(program, board, scan)
+    report = check_program(program, board)
     report_findings(report, diagnostics)
-    notes = tuple(scan.notes) + tuple(report.allowed_notes())
-    scan = replace(scan, notes=notes)
-    return CheckedProgram(program, board, scan, report)
+    return CheckedProgram(program, board, report)
 
 
 def compile_program(path: str | Path, out_dir: str | Path, formats: set[str], diagnostics: Diagnostics,
                     board_override: str | Path | None = None) -> CompileResult:
     checked = check_source_program(path, diagnostics, board_override)
     diagnostics.raise_if_errors()
-    cycles = lay_out_cycles(checked.scan)
-    report = replay(checked.scan, cycles)
-    if not report.ok:
+    program, board = checked.program, checked.board
+    scan = schedule(program, board, _computed_expectations(program, board))
+    scan = replace(scan, notes=tuple(scan.notes) + tuple(checked.report.allowed_notes()))
+    cycles = lay_out_cycles(scan)
+    report = replay(scan, cycles)
+    problems = [str(m) for m in report.mismatches] + [f.message for f in check_preload(scan)]
+    if problems:
         raise CompilerBug([Diagnostic(
             "error", "internal error: the independent replay disagrees with the compiled scans",
             hint="this is a scanloom bug; please report it with the program and board\n"
-                 + report.render(limit=20))])
+                 + "\n".join(problems[:20]))])
     from .backend.writers import write_outputs
 
-    written = write_outputs(checked.scan, cycles, Path(out_dir), Path(path).stem, formats)
-    return CompileResult(checked, cycles, report, written)
+    written = write_outputs(scan, cycles, Path(out_dir), Path(path).stem, formats)
+    return CompileResult(checked, scan, cycles, report, written)
