@@ -7,7 +7,7 @@ going back to the BSDL files or the board file.
 
 from __future__ import annotations
 
-from ..models.board import Board, ChainDevice, PinRef
+from ..models.board import Board, ChainDevice
 from ..models.device import DeviceModel
 from .records import CellMeaning, ChainMap, DeviceMap
 
@@ -32,16 +32,11 @@ def register_lengths(device: DeviceModel) -> dict[str, int]:
     return lengths
 
 
-def _device_map(entry: ChainDevice, net_of_pin: dict[PinRef, str]) -> DeviceMap:
+def _device_map(entry: ChainDevice, net_of_port: dict[str, str]) -> DeviceMap:
     device = entry.device
     cells = tuple(
-        CellMeaning(
-            number=cell.number,
-            cell_type=cell.cell_type,
-            function=cell.function,
-            port=cell.port,
-            net=net_of_pin.get(PinRef(entry.ref, cell.port)) if cell.port else None,
-        )
+        CellMeaning(cell.number, cell.cell_type, cell.function, cell.port,
+                    net_of_port.get(cell.port) if cell.port else None)
         for cell in device.cells
     )
     return DeviceMap(
@@ -61,5 +56,11 @@ def _device_map(entry: ChainDevice, net_of_pin: dict[PinRef, str]) -> DeviceMap:
 
 def build_chain_map(board: Board) -> ChainMap:
     """The chain in TDI -> TDO order, each boundary cell with its port and board net."""
-    net_of_pin = board.net_of_pin
-    return ChainMap(devices=tuple(_device_map(entry, net_of_pin) for entry in board.chain))
+    net_of_port: dict[str, dict[str, str]] = {entry.ref: {} for entry in board.chain}
+    for net in board.nets.values():
+        for pin in net.pins:
+            ports = net_of_port.get(pin.ref)
+            if ports is not None:
+                ports.setdefault(pin.port, net.name)
+    return ChainMap(devices=tuple(_device_map(entry, net_of_port[entry.ref])
+                                  for entry in board.chain))

@@ -1,4 +1,4 @@
-"""Register images and captures: what each device shifts into its register, and what it can see.
+"""Register images: what each device shifts into its boundary register for a step.
 
 An image is a bitarray indexed by cell number (bit i = boundary cell i, cell 0 nearest TDO),
 which is also the order the bits are shifted. Strings in BSDL order (leftmost = highest bit)
@@ -12,12 +12,15 @@ have tens of thousands of cells and programs tens of scans.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Iterable, Mapping
+from itertools import compress
+from operator import attrgetter
+from typing import Iterable, Mapping, Sequence
 
 from bitarray import bitarray, frozenbitarray
 
-from ..models.cells import PIN, STANDARD_CELLS, UPDATE, instruction_class, resolve_capture
-from ..models.device import CONTROL_FUNCTIONS, DRIVER_FUNCTIONS, CellInfo, DeviceModel
+from ..ir import Drive
+from ..models.cells import STANDARD_CELLS, instruction_class
+from ..models.device import CONTROL_FUNCTIONS, DRIVER_FUNCTIONS, BoundaryCell, CellInfo, DeviceModel
 
 __all__ = [
     "DRIVE",
@@ -29,11 +32,12 @@ __all__ = [
     "USER",
     "PRELOAD_KINDS",
     "BOUNDARY_KINDS",
-    "DriverCell",
-    "ObservingCell",
+    "enable_value",
     "DeviceTables",
     "ImageResult",
-    "CaptureResolver",
+    "ChainDriver",
+    "ChainImages",
+    "StepImages",
     "selected_register",
     "mode_kind",
     "preload_instruction",
@@ -43,7 +47,6 @@ __all__ = [
     "from_msb_string",
     "mask_from_msb_string",
     "zeros",
-    "is_comparable",
 ]
 
 # What an instruction makes a device do, as far as scheduling is concerned.
@@ -111,32 +114,6 @@ def preload_instruction(device: DeviceModel) -> str | None:
     return None
 
 
-@dataclass(frozen=True, slots=True)
-class DriverCell:
-    """The cell that drives a port in EXTEST, with its control cell (None for OUTPUT2)."""
-
-    number: int
-    function: str
-    control: int | None
-    disable_value: int | None
-
-    @property
-    def enable_value(self) -> int | None:
-        return None if self.disable_value is None else 1 - self.disable_value
-
-
-@dataclass(frozen=True, slots=True)
-class ObservingCell:
-    """A cell entry on a port, with what is needed to decide what it captures."""
-
-    number: int
-    cell_type: str
-    function: str
-    info: CellInfo | None
-    control: int | None
-    disable_value: int | None
-
-
 @dataclass(frozen=True, eq=False)
 class DeviceTables:
     """One device's precomputed images and per-port cell indexes."""
@@ -146,10 +123,20 @@ class DeviceTables:
     length: int
     safe: frozenbitarray  # BSDL safe values, X taken as 0
     disabled: frozenbitarray  # safe values with every control cell at its disable value
-    drivers: Mapping[str, DriverCell]  # port bit -> cell that drives it
+    drivers: Mapping[str, BoundaryCell]  # port bit -> cell that drives it
     core_inputs: Mapping[str, int]  # port bit -> cell that feeds the core in INTEST
-    observers: Mapping[str, tuple[ObservingCell, ...]]  # port bit -> cells on it
+    observers: Mapping[str, Sequence[BoundaryCell]]  # port bit -> every cell entry on it
+    cell_infos: Mapping[str, CellInfo | None] = field(default_factory=dict)  # cell type -> info
     disable_of: Mapping[int, int] = field(default_factory=dict)  # control cell -> disable value
+
+    def info(self, cell: BoundaryCell) -> CellInfo | None:
+        """The capture description of a cell's type (None when the type is undescribed)."""
+        return self.cell_infos.get(cell.cell_type)
+
+
+def enable_value(cell: BoundaryCell) -> int | None:
+    """The control value that enables a cell's output: NOT its disable value."""
+    return None if cell.disable_value is None else 1 - cell.disable_value
 
 
 def zeros(length: int) -> frozenbitarray:
@@ -194,10 +181,11 @@ def device_tables(ref: str, device: DeviceModel) -> DeviceTables:
     safe = bitarray(length)
     safe.setall(0)
     safe_from_role: set[int] = set()
-    drivers: dict[str, DriverCell] = {}
+    drivers: dict[str, BoundaryCell] = {}
     core_inputs: dict[str, int] = {}
-    observers: dict[str, list[ObservingCell]] = {}
+    observers: dict[str, list[BoundaryCell]] = {}
     disable_of: dict[int, int] = {}
+    infos: dict[str, CellInfo | None] = {}
     for cell in device.cells:
         if not 0 <= cell.number < length:
             continue
@@ -211,14 +199,13 @@ def device_tables(ref: str, device: DeviceModel) -> DeviceTables:
         if cell.port is None or cell.function == "INTERNAL":
             continue
         if cell.function in DRIVER_FUNCTIONS:
-            drivers.setdefault(cell.port, DriverCell(
-                cell.number, cell.function, cell.control_cell, cell.disable_value))
+            drivers.setdefault(cell.port, cell)
         if cell.function in _CORE_INPUT_FUNCTIONS and (
                 cell.port not in core_inputs or cell.function != "BIDIR"):
             core_inputs[cell.port] = cell.number
-        observers.setdefault(cell.port, []).append(ObservingCell(
-            cell.number, cell.cell_type, cell.function, _cell_info(device, cell.cell_type),
-            cell.control_cell, cell.disable_value))
+        if cell.cell_type not in infos:
+            infos[cell.cell_type] = _cell_info(device, cell.cell_type)
+        observers.setdefault(cell.port, []).append(cell)
     disabled = bitarray(safe)
     for control, value in disable_of.items():
         if 0 <= control < length:
@@ -231,7 +218,8 @@ def device_tables(ref: str, device: DeviceModel) -> DeviceTables:
         disabled=frozenbitarray(disabled),
         drivers=drivers,
         core_inputs=core_inputs,
-        observers={port: tuple(cells) for port, cells in observers.items()},
+        observers=observers,
+        cell_infos=infos,
         disable_of=disable_of,
     )
 
@@ -278,14 +266,15 @@ def build_image(tables: DeviceTables, kind: str, drives: Iterable[tuple[str, str
             continue
         if value in ("0", "1"):
             image[cell.number] = value == "1"
-            if cell.control is not None and cell.enable_value is not None:
-                enabled[cell.control] = cell.enable_value
+            enable = enable_value(cell)
+            if cell.control_cell is not None and enable is not None:
+                enabled[cell.control_cell] = enable
         elif value == "Z":
-            if cell.control is None or cell.disable_value is None:
+            if cell.control_cell is None or cell.disable_value is None:
                 problems.append(f"{ref}.{port} is a two-state output ({cell.function}); "
                                 "it cannot release, it drives its safe value")
             else:
-                released.append((port, cell.control))
+                released.append((port, cell.control_cell))
     for control, value in enabled.items():
         if 0 <= control < tables.length:
             image[control] = value
@@ -296,39 +285,182 @@ def build_image(tables: DeviceTables, kind: str, drives: Iterable[tuple[str, str
     return ImageResult(frozenbitarray(image), tuple(problems))
 
 
-class CaptureResolver:
-    """What a cell captures at Capture-DR, memoised per device, cell type, function and mode.
+@dataclass(frozen=True, slots=True)
+class ChainDriver:
+    """A driver port placed in the chain-wide image (positions, not cell numbers)."""
 
-    The answer comes from scanloom.models.cells.resolve_capture (the standard's CELL_INFO
-    descriptions); only PIN and UPDATE carry a value the scheduler can expect.
+    device: int
+    port: str
+    function: str
+    data: int
+    control: int  # -1 for a two-state output
+    enable_value: int
+
+
+@dataclass(frozen=True, eq=False)
+class _DriveTable:
+    """A step's list of driver pins placed in the chain image; reused while it stays the same."""
+
+    kinds: tuple[str, ...]
+    drivers: list[str | None]
+    data: list[int]  # chain position of each drive's data cell (0 where not regular)
+    control: list[int]  # chain position of its control cell (0 where none)
+    regular: frozenbitarray  # drives of EXTEST/CLAMP devices with an output cell
+    enable_one: frozenbitarray  # regular drives whose control enables at 1
+    enable_zero: frozenbitarray  # regular drives whose control enables at 0
+    two_state: frozenbitarray  # regular drives without a control cell
+    odd: tuple[int, ...]  # every other drive: INTEST, or not applicable (with a reason)
+
+
+@dataclass(frozen=True, eq=False)
+class StepImages:
+    """Every device's image for a step, the chain-wide image behind them, and problems."""
+
+    images: list[frozenbitarray | None]  # None outside boundary and clamp modes
+    chain_image: frozenbitarray
+    problems: list[str]
+
+
+_DRIVER_OF = attrgetter("driver")
+_VALUE_OF = attrgetter("value")
+_DRIVE_VALUES = frozenset({"0", "1", "Z"})
+_DROP_DRIVE_VALUES = str.maketrans("", "", "01Z")  # what is left is not a drive value
+_ONES = str.maketrans("01Z", "010")
+_ZEROS = str.maketrans("01Z", "100")
+
+
+class ChainImages:
+    """Every device's boundary register side by side, so a step's images are built at once.
+
+    A step with tens of thousands of drives becomes a handful of bitarray selections instead
+    of a Python loop per cell; `build_image` is the per-device reference it must agree with.
+    The last drive table is kept, as consecutive steps usually drive the same pins.
     """
 
-    def __init__(self) -> None:
-        self._memo: dict[tuple[int, str, str, str, bool], str] = {}
-        self.unknown_types: list[tuple[str, str]] = []  # (device ref, cell type), first seen order
+    def __init__(self, tables: Sequence[DeviceTables]) -> None:
+        self.tables = tuple(tables)
+        starts: list[int] = []
+        disabled = bitarray()
+        drivers: dict[str, ChainDriver] = {}
+        for idx, table in enumerate(self.tables):
+            start = len(disabled)
+            starts.append(start)
+            disabled += table.disabled
+            for port, cell in table.drivers.items():
+                control, enable = -1, 0
+                on = enable_value(cell)
+                if cell.control_cell is not None and on is not None \
+                        and 0 <= cell.control_cell < table.length:
+                    control, enable = start + cell.control_cell, on
+                drivers[f"{table.ref}.{port}"] = ChainDriver(
+                    idx, port, cell.function, start + cell.number, control, enable)
+        self.starts = tuple(starts)
+        self.disabled = frozenbitarray(disabled)
+        self.drivers = drivers
+        self.index = {table.ref: idx for idx, table in enumerate(self.tables)}
+        self._last: _DriveTable | None = None
 
-    def capture(self, index: int, tables: DeviceTables, cell: ObservingCell, kind: str,
-                instruction: str, image: bitarray) -> str:
-        """PIN, UPDATE, HOLD, X, "0" or "1" for one cell of a device in a boundary mode."""
-        cls = instruction_class(instruction, "BOUNDARY") or "SAMPLE"
-        driving = False
-        if kind == DRIVE and cell.function in DRIVER_FUNCTIONS:
-            if cell.control is None or cell.disable_value is None:
-                driving = True
-            elif 0 <= cell.control < len(image):
-                driving = image[cell.control] != cell.disable_value
-        key = (index, cell.cell_type, cell.function, cls, driving)
-        found = self._memo.get(key)
-        if found is None:
-            if cell.info is None or not cell.info.known:
-                pair = (tables.ref, cell.cell_type)
-                if pair not in self.unknown_types:
-                    self.unknown_types.append(pair)
-            found = resolve_capture(cell.info, cell.function, cls, driving)
-            self._memo[key] = found
-        return found
+    def _table(self, kinds: tuple[str, ...], drivers: list[str | None]) -> _DriveTable:
+        direct = [kind == DRIVE or kind == CLAMP for kind in kinds]
+        data: list[int] = []
+        control: list[int] = []
+        regular: list[bool] = []
+        enable_one: list[bool] = []
+        enable_zero: list[bool] = []
+        two_state: list[bool] = []
+        odd: list[int] = []
+        for number, driver in enumerate(drivers):
+            found = self.drivers.get(driver) if driver else None
+            if found is None or not direct[found.device]:
+                odd.append(number)
+                found = None
+            has_control = found is not None and found.control >= 0
+            data.append(found.data if found is not None else 0)
+            control.append(found.control if found is not None and has_control else 0)
+            regular.append(found is not None)
+            enable_one.append(has_control and found is not None and found.enable_value == 1)
+            enable_zero.append(has_control and found is not None and found.enable_value == 0)
+            two_state.append(found is not None and not has_control)
+        return _DriveTable(kinds, drivers, data, control, frozenbitarray(regular),
+                           frozenbitarray(enable_one), frozenbitarray(enable_zero),
+                           frozenbitarray(two_state), tuple(odd))
 
+    def build(self, kinds: tuple[str, ...], drives: Sequence[Drive]) -> StepImages:
+        """Each device's image for a step (IEEE 1149.1 boundary-register rules, see build_image)."""
+        problems: list[str] = []
+        drivers = list(map(_DRIVER_OF, drives))
+        table = self._last
+        if table is None or table.kinds != kinds or table.drivers != drivers:
+            table = self._table(kinds, drivers)
+            self._last = table
+        text = "".join(map(_VALUE_OF, drives))
+        if len(text) != len(drives) or text.translate(_DROP_DRIVE_VALUES):
+            for drive in drives:
+                if drive.value not in _DRIVE_VALUES:
+                    problems.append(f"drive on {drive.target}: value {drive.value!r} is not 0, 1 "
+                                    "or Z; released instead")
+            text = "".join(v if v in _DRIVE_VALUES else "Z" for v in map(_VALUE_OF, drives))
+        image = bitarray(self.disabled)
+        if drives:
+            ones = bitarray(text.translate(_ONES)) & table.regular
+            zeros_ = bitarray(text.translate(_ZEROS)) & table.regular
+            driven = ones | zeros_
+            image[list(compress(table.data, zeros_))] = 0
+            image[list(compress(table.data, ones))] = 1
+            # Each driven output enables its control cell (NOT its disable value).
+            image[list(compress(table.control, driven & table.enable_zero))] = 0
+            image[list(compress(table.control, driven & table.enable_one))] = 1
+            released = table.regular & ~driven
+            if released.any():
+                self._check_releases(table, released, image, problems)
+        intest: dict[int, list[tuple[str, str]]] = {}
+        for number in table.odd:
+            self._odd_drive(drives[number], text[number], kinds, intest, problems)
+        images: list[frozenbitarray | None] = []
+        for idx, kind in enumerate(kinds):
+            device_table = self.tables[idx]
+            if kind == DRIVE or kind == CLAMP:
+                start = self.starts[idx]
+                images.append(frozenbitarray(image[start:start + device_table.length]))
+            elif kind == INTEST:
+                result = build_image(device_table, INTEST, intest.get(idx, ()))
+                problems.extend(result.problems)
+                images.append(result.image)
+            elif kind == OBSERVE:
+                images.append(device_table.safe)
+            else:
+                images.append(None)
+        return StepImages(images, frozenbitarray(image), problems)
 
-def is_comparable(capture: str) -> bool:
-    """Only the pin value and the cell's own update latch are known to the scheduler."""
-    return capture in (PIN, UPDATE)
+    def _check_releases(self, table: _DriveTable, released: bitarray, image: bitarray,
+                        problems: list[str]) -> None:
+        """A Z drive must leave its output disabled; say so where that cannot happen."""
+        for number in released.search(1):
+            found = self.drivers[table.drivers[number]]  # type: ignore[index]
+            ref = self.tables[found.device].ref
+            if table.two_state[number]:
+                problems.append(f"{ref}.{found.port} is a two-state output ({found.function}); "
+                                "it cannot release, it drives its safe value")
+            elif image[found.control] == found.enable_value:
+                problems.append(f"{ref}.{found.port} cannot release: its control cell "
+                                f"{found.control - self.starts[found.device]} is shared with a "
+                                "driven output and stays enabled")
+
+    def _odd_drive(self, drive: Drive, value: str, kinds: Sequence[str],
+                   intest: dict[int, list[tuple[str, str]]], problems: list[str]) -> None:
+        """A drive the fast path does not place: INTEST core inputs, or why it is not applied."""
+        if not drive.driver:
+            problems.append(f"drive on {drive.target} has no scan driver; not applied")
+            return
+        ref, _, port = drive.driver.partition(".")
+        idx = self.index.get(ref)
+        if idx is None:
+            problems.append(f"drive on {drive.target}: {drive.driver} is not a scan pin; "
+                            "not applied")
+        elif kinds[idx] == INTEST:
+            intest.setdefault(idx, []).append((port, value))
+        elif kinds[idx] not in (DRIVE, CLAMP):
+            problems.append(f"{ref} is in a mode that does not drive; "
+                            f"drive on {drive.target} not applied")
+        else:
+            problems.append(f"{ref}.{port} has no output cell; drive not applied")

@@ -15,24 +15,44 @@ thing and says so in ScanProgram.notes.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable, Mapping, Sequence
+from operator import attrgetter
+from typing import Iterator, Mapping, Sequence
 
 from bitarray import bitarray, frozenbitarray
 
-from ..ir import COMPUTED, Expect, Program, RegisterRead, Step, Test, Wait
+from ..ir import COMPUTED, Program, RegisterRead, Step, Test, Wait
 from ..models.board import Board, PinRef
+from ..models.device import BoundaryCell
 from .chainmap import build_chain_map, register_lengths
+from .captures import (
+    CaptureResolver, ExpectationTable, build_expectation_table, compare_expectations,
+)
 from .images import (
-    BOUNDARY_KINDS, CLAMP, OBSERVE, PIN, PRELOAD_KINDS, UPDATE, USER, CaptureResolver,
-    DeviceTables, ObservingCell, build_image, device_tables, from_msb_string,
-    mask_from_msb_string, mode_kind, preload_instruction, selected_register, to_msb_string, zeros,
+    BOUNDARY_KINDS, CLAMP, OBSERVE, PRELOAD_KINDS, USER, ChainImages, device_tables, from_msb_string, mask_from_msb_string, mode_kind, preload_instruction,
+    selected_register, to_msb_string, zeros,
 )
 from .records import DR_SCAN, IDLE, IR_SCAN, RESET, CheckRange, ScanProgram, Segment, ShiftRecord
 
 __all__ = ["schedule"]
 
 Computed = Mapping[tuple[str, str, str], str]
-_BitsOf = Callable[[int, str, int], tuple[bitarray, bitarray]]
+_TARGET_OF = attrgetter("target")
+_VALUE_OF = attrgetter("value")
+_IS_PIN_OF = attrgetter("is_pin")
+_EXPECTED_VALUES = frozenset({"0", "1", "X"})
+_DROP_EXPECTED_VALUES = str.maketrans("", "", "01X")  # what is left needs a closer look
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class _Layout:
+    """Where each device's register sits in a DR scan under one set of instructions."""
+
+    registers: tuple[str, ...]
+    offsets: tuple[int, ...]  # the device nearest TDO starts at 0
+    lengths: tuple[int, ...]
+    length: int
+    segments: tuple[Segment, ...]
+    bypass: frozenbitarray  # 1 on every BYPASS bit: those are always compared
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -45,21 +65,15 @@ class _Shift:
 
 
 @dataclass(frozen=True, slots=True, eq=False)
-class _Compare:
-    """One device's compared bits (register bit 0 first)."""
-
-    register: str
-    tdo: frozenbitarray
-    mask: frozenbitarray
-
-
-@dataclass(frozen=True, slots=True, eq=False)
 class _Response:
-    """What the scan after a step's update must compare: the step's expectations and reads."""
+    """What the scan after a step's update compares: its expectations and reads, whole scan."""
 
     test: str
     step: str
-    compares: dict[int, _Compare]
+    layout: _Layout
+    tdo: frozenbitarray
+    mask: frozenbitarray
+    compared: frozenset[int]  # devices with compared bits
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -68,8 +82,10 @@ class _StepPlan:
 
     modes: tuple[str, ...]
     kinds: tuple[str, ...]
+    layout: _Layout
     images: tuple[frozenbitarray | None, ...]  # what each update stage must hold for the step
     shifts: tuple[_Shift, ...]
+    tdi: frozenbitarray  # the whole scan this step shifts
     response: _Response | None
     user_writes: bool
 
@@ -83,6 +99,14 @@ def schedule(program: Program, board: Board, computed: Computed | None = None) -
     return _Scheduler(program, board, computed or {}).run()
 
 
+def _concat(parts: Sequence[bitarray]) -> frozenbitarray:
+    """Chain-order parts into scan order: the last device (nearest TDO) is shifted first."""
+    out = bitarray()
+    for part in reversed(parts):
+        out += part
+    return frozenbitarray(out)
+
+
 class _Scheduler:
     """The state of one scheduling run: instruction and update stage per device, pending response."""
 
@@ -94,6 +118,7 @@ class _Scheduler:
         self.index = {ref: idx for idx, ref in enumerate(self.refs)}
         self.devices = tuple(entry.device for entry in board.chain)
         self.tables = tuple(device_tables(entry.ref, entry.device) for entry in board.chain)
+        self.chain_images = ChainImages(self.tables)
         self.lengths = tuple(register_lengths(device) for device in self.devices)
         self.resolver = CaptureResolver()
         self.records: list[ShiftRecord] = []
@@ -110,9 +135,8 @@ class _Scheduler:
         self._instruction_memo: dict[tuple[int, str], str] = {}
         self._kind_memo: dict[tuple[int, str], str] = {}
         self._opcode_memo: dict[tuple[int, str], frozenbitarray] = {}
-        self._driver_memo: dict[str, tuple[int, str] | None] = {}
-        self._receiver_memo: dict[tuple[str, bool], tuple[tuple[int, ObservingCell], ...]] = {}
-        self._image_memo: dict[int, tuple[str, tuple[tuple[str, str], ...], frozenbitarray]] = {}
+        self._layouts: dict[tuple[str, ...], _Layout] = {}
+        self._expectation_table: ExpectationTable | None = None
 
     # ----------------------------------------------------------------------------- program
     def run(self) -> ScanProgram:
@@ -162,8 +186,8 @@ class _Scheduler:
                 self._idle(step.wait_clocks, test.name, step.name, "wait")
         else:
             # The apply scan of this step is the response scan of the previous one.
-            self._dr_scan(plan.shifts, self.pending, "drive", test.name, step.name,
-                          step.wait_clocks)
+            self._dr_scan(plan.layout, plan.shifts, plan.tdi, self.pending, "drive", test.name,
+                          step.name, step.wait_clocks)
         self.applied = plan
         self.pending = plan.response
 
@@ -198,10 +222,8 @@ class _Scheduler:
     def _modes(self, pairs: Sequence[tuple[str, str]]) -> tuple[str, ...]:
         given = dict(pairs)
         default = self.program.default_instruction
-        modes = []
-        for idx, ref in enumerate(self.refs):
-            modes.append(self._instruction(idx, given.get(ref, default)))
-        return tuple(modes)
+        return tuple(self._instruction(idx, given.get(ref, default))
+                     for idx, ref in enumerate(self.refs))
 
     def _kind(self, idx: int, instruction: str) -> str:
         key = (idx, instruction)
@@ -219,13 +241,38 @@ class _Scheduler:
             return 1
         return length
 
+    def _layout(self, modes: tuple[str, ...]) -> _Layout:
+        """The DR scan layout under `modes`: each device's selected register and its offset."""
+        found = self._layouts.get(modes)
+        if found is None:
+            registers = tuple(selected_register(self.devices[idx], mode)
+                              for idx, mode in enumerate(modes))
+            lengths = tuple(self._register_length(idx, register)
+                            for idx, register in enumerate(registers))
+            offsets = [0] * len(lengths)
+            total = 0
+            for idx in range(len(lengths) - 1, -1, -1):
+                offsets[idx] = total
+                total += lengths[idx]
+            bypass = bitarray(total)
+            bypass.setall(0)
+            for idx, register in enumerate(registers):
+                if register == "BYPASS":
+                    bypass[offsets[idx]:offsets[idx] + lengths[idx]] = 1
+            segments = tuple(Segment(ref, registers[idx], offsets[idx], lengths[idx])
+                             for idx, ref in enumerate(self.refs))
+            found = _Layout(registers, tuple(offsets), lengths, total, segments,
+                            frozenbitarray(bypass))
+            self._layouts[modes] = found
+        return found
+
     # ----------------------------------------------------------------------------- entering modes
     def _enter(self, modes: tuple[str, ...], kinds: tuple[str, ...],
                images: tuple[frozenbitarray | None, ...], test: str, step: str | None) -> None:
         """Load `modes`, preloading every device that would otherwise drive undefined values.
 
         IEEE 1149.1-2001 (EXTEST and CLAMP clauses, from memory 8.8 and 8.11): the update stage
-        must hold defined data before the instruction that drives it from the pins takes
+        must hold defined data before the instruction that drives it onto the pins takes
         effect; it is loaded under PRELOAD (2001) or SAMPLE/PRELOAD (1990) while the other
         devices keep their instruction.
         """
@@ -254,8 +301,11 @@ class _Scheduler:
                 self._ir_scan(tuple(stage), test, step)
             shifts = [self._hold_shift(idx) for idx in range(len(self.refs))]
             for idx, _ in preload:
-                shifts[idx] = _Shift("BOUNDARY", images[idx], True)  # type: ignore[arg-type]
-            self._dr_scan(tuple(shifts), None, "preload", test, step, 0)
+                image = images[idx]
+                assert image is not None  # every preloaded kind has an image
+                shifts[idx] = _Shift("BOUNDARY", image, True)
+            self._dr_scan(self._layout(tuple(self.instr)), tuple(shifts),
+                          _concat([s.bits for s in shifts]), None, "preload", test, step, 0)
         if list(modes) != self.instr:
             self._ir_scan(modes, test, step)
 
@@ -279,80 +329,57 @@ class _Scheduler:
     def _plan(self, test: str, step: Step) -> _StepPlan:
         modes = self._modes(step.modes)
         kinds = tuple(self._kind(idx, mode) for idx, mode in enumerate(modes))
-        drives = self._drives_by_device(step, modes, kinds)
-        writes = self._writes_by_device(step, modes)
-        images: list[frozenbitarray | None] = []
+        layout = self._layout(modes)
+        built = self.chain_images.build(kinds, step.drives)
+        for problem in built.problems:
+            self.note(problem)
+        images = list(built.images)
+        writes = self._writes_by_device(step, modes, layout)
+        chain_image = built.chain_image
         shifts: list[_Shift] = []
         user_writes = False
         for idx, kind in enumerate(kinds):
-            register = selected_register(self.devices[idx], modes[idx])
+            register = layout.registers[idx]
             write = writes.get(idx)
-            image: frozenbitarray | None = None
-            if kind in PRELOAD_KINDS or kind == OBSERVE:
-                image = self._image(idx, kind, tuple(drives.get(idx, ())))
-                if write is not None and register == "BOUNDARY":
-                    image = write
-            images.append(image)
+            if write is not None and register == "BOUNDARY":
+                # A whole-register write replaces the image built from drives.
+                images[idx] = write
+                start = self.chain_images.starts[idx]
+                patched = bitarray(chain_image)
+                patched[start:start + len(write)] = write
+                chain_image = frozenbitarray(patched)
             if kind in BOUNDARY_KINDS:
-                shifts.append(_Shift("BOUNDARY", image, True))  # type: ignore[arg-type]
+                image = images[idx]
+                assert image is not None  # every boundary kind has an image
+                shifts.append(_Shift("BOUNDARY", image, True))
             elif kind == USER:
                 user_writes = user_writes or write is not None
-                length = self._register_length(idx, register)
-                bits = write if write is not None else self.user[idx].get(register, zeros(length))
+                bits = write if write is not None else self.user[idx].get(
+                    register, zeros(layout.lengths[idx]))
                 shifts.append(_Shift(register, bits, True))
             else:
-                length = self._register_length(idx, register)
-                shifts.append(_Shift(register, write if write is not None else zeros(length), False))
-        response = self._response(test, step, modes, kinds, tuple(images), tuple(shifts))
-        return _StepPlan(modes, kinds, tuple(images), tuple(shifts), response, user_writes)
+                bits = write if write is not None else zeros(layout.lengths[idx])
+                shifts.append(_Shift(register, bits, False))
+        tdi = _concat([shift.bits for shift in shifts])
+        frozen_images = tuple(images)
+        response = self._response(test, step, modes, kinds, layout, chain_image, tdi)
+        return _StepPlan(modes, kinds, layout, frozen_images, tuple(shifts), tdi, response,
+                         user_writes)
 
-    def _image(self, idx: int, kind: str, drives: tuple[tuple[str, str], ...]) -> frozenbitarray:
-        """A device's boundary image, reused while its drives stay the same (they persist)."""
-        cached = self._image_memo.get(idx)
-        if cached is not None and cached[0] == kind and cached[1] == drives:
-            return cached[2]
-        result = build_image(self.tables[idx], kind, drives)
-        for problem in result.problems:
-            self.note(problem)
-        self._image_memo[idx] = (kind, drives, result.image)
-        return result.image
-
-    def _driver(self, driver: str) -> tuple[int, str] | None:
-        if driver not in self._driver_memo:
-            pin = PinRef.parse(driver)
-            idx = self.index.get(pin.ref)
-            self._driver_memo[driver] = None if idx is None else (idx, pin.port)
-        return self._driver_memo[driver]
-
-    def _drives_by_device(self, step: Step, modes: tuple[str, ...],
-                          kinds: tuple[str, ...]) -> dict[int, list[tuple[str, str]]]:
-        by_device: dict[int, list[tuple[str, str]]] = {}
-        for drive in step.drives:
-            found = self._driver(drive.driver) if drive.driver else None
-            if found is None:
-                self.note(f"drive on {drive.target} has no scan driver; not applied")
-                continue
-            idx, port = found
-            if kinds[idx] not in PRELOAD_KINDS:
-                self.note(f"{self.refs[idx]} is in {modes[idx]}, which does not drive; "
-                          f"drive on {drive.target} not applied")
-                continue
-            by_device.setdefault(idx, []).append((port, drive.value))
-        return by_device
-
-    def _writes_by_device(self, step: Step, modes: tuple[str, ...]) -> dict[int, frozenbitarray]:
+    def _writes_by_device(self, step: Step, modes: tuple[str, ...],
+                          layout: _Layout) -> dict[int, frozenbitarray]:
         writes: dict[int, frozenbitarray] = {}
         for write in step.writes:
             idx = self.index.get(write.ref)
             if idx is None:
                 self.note(f"write to {write.ref}.{write.register}: no such chain device; ignored")
                 continue
-            register = selected_register(self.devices[idx], modes[idx])
+            register = layout.registers[idx]
             if write.register != register:
                 self.note(f"write to {write.ref}.{write.register}: {modes[idx]} selects "
                           f"{register}; ignored")
                 continue
-            length = self._register_length(idx, register)
+            length = layout.lengths[idx]
             if len(write.bits) != length or any(ch not in "01" for ch in write.bits):
                 self.note(f"write to {write.ref}.{write.register}: needs {length} bits of 0/1, "
                           f"got {write.bits!r}; ignored")
@@ -361,103 +388,92 @@ class _Scheduler:
         return writes
 
     # ----------------------------------------------------------------------------- responses
-    def _receivers(self, target: str, is_pin: bool) -> tuple[tuple[int, ObservingCell], ...]:
+    def _receivers(self, target: str, is_pin: bool) -> Iterator[tuple[int, BoundaryCell]]:
         """Every (device, cell) that sits on the pin, or on any scan pin of the net."""
-        key = (target, is_pin)
-        found = self._receiver_memo.get(key)
-        if found is None:
-            pins: tuple[PinRef, ...] = ()
-            if is_pin:
-                pin = PinRef.parse(target)
-                if pin.ref in self.index:
-                    pins = (pin,)
-                else:
-                    net_name = self.board.net_of_pin.get(pin)
-                    net = self.board.nets.get(net_name) if net_name else None
-                    pins = net.pins if net is not None else ()
-            else:
-                net = self.board.nets.get(target)
+        pins: tuple[PinRef, ...] = ()
+        if is_pin:
+            pin = PinRef.parse(target)
+            if pin.ref in self.index:
+                pins = (pin,)
+            else:  # a pin of a part without boundary scan: observe its net
+                net_name = self.board.net_of_pin.get(pin)
+                net = self.board.nets.get(net_name) if net_name else None
                 pins = net.pins if net is not None else ()
-            cells: list[tuple[int, ObservingCell]] = []
-            for pin in pins:
-                idx = self.index.get(pin.ref)
-                if idx is not None:
-                    cells.extend((idx, cell) for cell in self.tables[idx].observers.get(pin.port, ()))
-            found = tuple(cells)
-            self._receiver_memo[key] = found
-        return found
+        else:
+            net = self.board.nets.get(target)
+            pins = net.pins if net is not None else ()
+        for pin in pins:
+            idx = self.index.get(pin.ref)
+            if idx is not None:
+                for cell in self.tables[idx].observers.get(pin.port, ()):
+                    yield idx, cell
 
     def _response(self, test: str, step: Step, modes: tuple[str, ...], kinds: tuple[str, ...],
-                  images: tuple[frozenbitarray | None, ...],
-                  shifts: tuple[_Shift, ...]) -> _Response | None:
-        """The bits the scan after this step's update compares, per device."""
-        tdo: dict[int, bitarray] = {}
-        mask: dict[int, bitarray] = {}
-        registers: dict[int, str] = {}
+                  layout: _Layout, chain_image: frozenbitarray,
+                  tdi: frozenbitarray) -> _Response | None:
+        """The bits the scan after this step's update compares (whole scan, bit 0 first).
 
-        def bits_of(idx: int, register: str, length: int) -> tuple[bitarray, bitarray]:
-            if idx not in tdo:
-                tdo[idx] = bitarray(zeros(length))
-                mask[idx] = bitarray(zeros(length))
-                registers[idx] = register
-            return tdo[idx], mask[idx]
-
-        for expect in step.expects:
-            value = self._expected_value(test, step, expect)
-            if value is None:
-                continue
-            hit = False
-            for idx, cell in self._receivers(expect.target, expect.is_pin):
-                kind = kinds[idx]
-                if kind not in BOUNDARY_KINDS:
-                    continue
-                image = images[idx]
-                assert image is not None
-                captured = self.resolver.capture(idx, self.tables[idx], cell, kind, modes[idx], image)
-                if captured == PIN:
-                    bit = value == "1"
-                elif captured == UPDATE:
-                    bit = bool(image[cell.number])  # the cell's own update latch
-                else:
-                    continue
-                t, m = bits_of(idx, "BOUNDARY", self.tables[idx].length)
-                t[cell.number] = bit
-                m[cell.number] = 1
-                hit = True
-            if not hit:
-                self.note(f"test {test} step {step.name}: no boundary cell in a capturing mode "
-                          f"can observe {expect.target}; expectation not compared")
+        An expectation is compared on every cell of a device in a boundary mode that captures
+        the pin (IEEE 1149.1-2001 Annex B CELL_INFO: PI of an input, PO of an observing
+        output) and, for cells that capture their own update latch, against the image held.
+        """
+        tdo = bitarray(layout.length)
+        tdo.setall(0)
+        mask = bitarray(tdo)
+        expects = step.expects
+        if expects:
+            targets = list(map(_TARGET_OF, expects))
+            table = self._expectation_table
+            if table is None or table.modes != modes or table.targets != targets:
+                table = build_expectation_table(
+                    modes, kinds, targets, list(map(_IS_PIN_OF, expects)), self._receivers,
+                    self.tables, layout.offsets, self.chain_images.starts, self.resolver)
+                self._expectation_table = table
+            values = "".join(map(_VALUE_OF, expects))
+            if len(values) != len(expects) or values.translate(_DROP_EXPECTED_VALUES):
+                values = self._checked_values(test, step, targets)
+            for owner in table.unobservable:
+                if values[owner] != "X":
+                    self.note(f"test {test} step {step.name}: no boundary cell in a capturing "
+                              f"mode can observe {targets[owner]}; expectation not compared")
+            compare_expectations(table, values, chain_image, tdi, tdo, mask)
         for read in step.reads:
-            self._read(test, step, read, modes, shifts, bits_of)
-        compares = {idx: _Compare(registers[idx], frozenbitarray(tdo[idx]), frozenbitarray(mask[idx]))
-                    for idx in sorted(tdo) if mask[idx].any()}
-        return _Response(test, step.name, compares) if compares else None
+            self._read(test, step, read, modes, layout, tdo, mask)
+        compared = frozenset(idx for idx in range(len(self.refs))
+                             if layout.lengths[idx]
+                             and mask[layout.offsets[idx]:layout.offsets[idx] + layout.lengths[idx]].any())
+        if not compared:
+            return None
+        return _Response(test, step.name, layout, frozenbitarray(tdo), frozenbitarray(mask),
+                         compared)
 
-    def _expected_value(self, test: str, step: Step, expect: Expect) -> str | None:
-        """"0" or "1" to compare, or None (X, or a computed value nobody supplied)."""
-        value = expect.value
-        if value == COMPUTED:
-            found = self.computed.get((test, step.name, expect.target))
-            if found is None:
-                self.note(f"test {test} step {step.name}: computed expectation on "
-                          f"{expect.target} has no value; not compared")
-                return None
-            value = found
-        if value in ("0", "1"):
-            return value
-        if value != "X":
-            self.note(f"test {test} step {step.name}: expectation {value!r} on {expect.target} "
-                      "is not 0, 1 or X; not compared")
-        return None
+    def _checked_values(self, test: str, step: Step, targets: list[str]) -> str:
+        """Expected values as 0/1/X: computed ones looked up, anything else not compared."""
+        out: list[str] = []
+        for target, expect in zip(targets, step.expects):
+            value = expect.value
+            if value == COMPUTED:
+                found = self.computed.get((test, step.name, target))
+                if found is None:
+                    self.note(f"test {test} step {step.name}: computed expectation on {target} "
+                              "has no value; not compared")
+                value = found if found is not None else "X"
+            if value not in _EXPECTED_VALUES:
+                self.note(f"test {test} step {step.name}: expectation {value!r} on {target} "
+                          "is not 0, 1 or X; not compared")
+                value = "X"
+            out.append(value)
+        return "".join(out)
 
     def _read(self, test: str, step: Step, read: RegisterRead, modes: tuple[str, ...],
-              shifts: tuple[_Shift, ...], bits_of: _BitsOf) -> None:
+              layout: _Layout, tdo: bitarray, mask: bitarray) -> None:
+        """Compare a register read: its expected bits, X masked; "" means the BSDL IDCODE."""
         where = f"test {test} step {step.name}: read of {read.ref}.{read.register}"
         idx = self.index.get(read.ref)
         if idx is None:
             self.note(f"{where}: no such chain device; not compared")
             return
-        register = shifts[idx].register
+        register = layout.registers[idx]
         if read.register != register:
             self.note(f"{where}: {modes[idx]} selects {register}; not compared")
             return
@@ -466,34 +482,17 @@ class _Scheduler:
             device = self.devices[idx]
             # "The BSDL pattern": IDCODE_REGISTER, or USERCODE_REGISTER under USERCODE.
             expected = (device.usercode if modes[idx] == "USERCODE" else device.idcode) or ""
-        length = len(shifts[idx].bits)
+        length = layout.lengths[idx]
         if len(expected) != length or any(ch not in "01Xx" for ch in expected):
             self.note(f"{where}: needs {length} bits of 0/1/X, got {expected!r}; not compared")
             return
-        new_tdo = from_msb_string(expected)
+        start = layout.offsets[idx]
         new_mask = mask_from_msb_string(expected)
-        t, m = bits_of(idx, register, length)
-        t &= ~new_mask
-        t |= new_tdo & new_mask
-        m |= new_mask
+        old_tdo = tdo[start:start + length]
+        tdo[start:start + length] = (old_tdo & ~new_mask) | (from_msb_string(expected) & new_mask)
+        mask[start:start + length] = mask[start:start + length] | new_mask
 
     # ----------------------------------------------------------------------------- records
-    def _offsets(self, lengths: Sequence[int]) -> list[int]:
-        """Scan offset of each device's segment: the device nearest TDO comes first."""
-        offsets = [0] * len(lengths)
-        offset = 0
-        for idx in range(len(lengths) - 1, -1, -1):
-            offsets[idx] = offset
-            offset += lengths[idx]
-        return offsets
-
-    @staticmethod
-    def _concat(parts: Sequence[bitarray]) -> bitarray:
-        out = bitarray()
-        for part in reversed(parts):
-            out += part
-        return out
-
     def _opcode(self, idx: int, instruction: str) -> frozenbitarray:
         """Opcode bits, bit 0 first: BYPASS prefers all ones; otherwise the first opcode, X as 0."""
         key = (idx, instruction)
@@ -533,52 +532,47 @@ class _Scheduler:
             tdo.append(from_msb_string(capture))
             mask.append(mask_from_msb_string(capture))
         lengths = [len(bits) for bits in tdi]
-        offsets = self._offsets(lengths)
-        segments = tuple(Segment(ref, "IR", offsets[idx], lengths[idx])
-                         for idx, ref in enumerate(self.refs))
-        total = sum(lengths)
+        segments = []
+        offset = 0
+        for idx in range(len(lengths) - 1, -1, -1):
+            segments.append(Segment(self.refs[idx], "IR", offset, lengths[idx]))
+            offset += lengths[idx]
         self.records.append(ShiftRecord(
-            IR_SCAN, length=total, tdi=self._concat(tdi), tdo=self._concat(tdo),
-            mask=self._concat(mask), segments=segments, test=test, step=step,
-            purpose="instruction", intent={ref: modes[idx] for idx, ref in enumerate(self.refs)}))
+            IR_SCAN, length=offset, tdi=bitarray(_concat(tdi)), tdo=bitarray(_concat(tdo)),
+            mask=bitarray(_concat(mask)), segments=tuple(reversed(segments)), test=test,
+            step=step, purpose="instruction",
+            intent={ref: modes[idx] for idx, ref in enumerate(self.refs)}))
         self.instr = list(modes)
 
-    def _dr_scan(self, shifts: tuple[_Shift, ...], response: _Response | None, purpose: str,
-                 test: str, step: str | None, idle_clocks: int) -> None:
-        """A data-register scan shifting `shifts` and comparing `response` (and BYPASS zeros)."""
-        tdo: list[bitarray] = []
-        mask: list[bitarray] = []
+    def _dr_scan(self, layout: _Layout, shifts: tuple[_Shift, ...], tdi: frozenbitarray,
+                 response: _Response | None, purpose: str, test: str, step: str | None,
+                 idle_clocks: int) -> None:
+        """A data-register scan shifting `shifts` and comparing `response` and BYPASS zeros."""
+        if response is not None:
+            assert response.layout is layout  # a response is collected under its own instructions
+            tdo = bitarray(response.tdo)
+            mask = bitarray(response.mask) | layout.bypass
+        else:
+            tdo = bitarray(layout.length)
+            tdo.setall(0)
+            mask = bitarray(layout.bypass)
         checks: list[CheckRange] = []
         intent: dict[str, str] = {}
         for idx, shift in enumerate(shifts):
             ref = self.refs[idx]
-            length = len(shift.bits)
-            compare = response.compares.get(idx) if response is not None else None
-            if compare is not None and compare.register == shift.register:
-                tdo.append(compare.tdo)
-                mask.append(compare.mask)
+            if response is not None and idx in response.compared:
                 checks.append(CheckRange(ref, shift.register, response.test, response.step))
             elif shift.register == "BYPASS":
                 # IEEE 1149.1 (bypass register clause): BYPASS captures a logic 0.
-                tdo.append(zeros(length))
-                mask.append(~zeros(length))
                 checks.append(CheckRange(ref, "BYPASS", test, step or ""))
-            else:
-                tdo.append(zeros(length))
-                mask.append(zeros(length))
             if shift.updates:
                 intent[ref] = to_msb_string(shift.bits)
         if purpose in ("drive", "flush") and not intent:
             purpose = "read"
-        lengths = [len(shift.bits) for shift in shifts]
-        offsets = self._offsets(lengths)
-        segments = tuple(Segment(ref, shifts[idx].register, offsets[idx], lengths[idx])
-                         for idx, ref in enumerate(self.refs))
         self.records.append(ShiftRecord(
-            DR_SCAN, length=sum(lengths), tdi=self._concat([s.bits for s in shifts]),
-            tdo=self._concat(tdo), mask=self._concat(mask), segments=segments,
-            checks=tuple(checks), test=test, step=step, purpose=purpose, intent=intent,
-            idle_clocks=idle_clocks))
+            DR_SCAN, length=layout.length, tdi=bitarray(tdi), tdo=tdo, mask=mask,
+            segments=layout.segments, checks=tuple(checks), test=test, step=step,
+            purpose=purpose, intent=intent, idle_clocks=idle_clocks))
         for idx, shift in enumerate(shifts):
             if shift.updates:
                 if shift.register == "BOUNDARY":
@@ -592,7 +586,9 @@ class _Scheduler:
             return
         assert self.applied is not None  # a response is only pending after its step's plan
         response, self.pending = self.pending, None
-        self._dr_scan(self.applied.shifts, response, "flush", response.test, response.step, 0)
+        plan = self.applied
+        self._dr_scan(plan.layout, plan.shifts, plan.tdi, response, "flush", response.test,
+                      response.step, 0)
 
     def _idle(self, clocks: int, test: str, step: str | None, purpose: str) -> None:
         self.records.append(ShiftRecord(IDLE, test=test, step=step, purpose=purpose,
