@@ -140,8 +140,9 @@ def test_table_columns_rows_and_comments_between_rows():
 def test_table_cells_carry_their_own_columns():
     test = only_test("test t \"t\" {\n    table {\n        A B -> Y\n        1   0x3 -> z\n    }\n}\n")
     row = test.items[0].rows[0]
-    assert [(v.span.line, v.span.column) for v in row.drives + row.expects] == [(4, 9), (4, 13),
-                                                                                   (4, 20)]
+    spans = [row.cell_span(i) for i in range(3)]
+    assert [(s.line, s.column, s.end_column) for s in spans] == [(4, 9, 10), (4, 13, 16),
+                                                                  (4, 20, 21)]
     assert row.expects == (ast.Released(),)
 
 

@@ -69,6 +69,12 @@ class Computed:
 Value = Union[Literal, DontCare, Released, Computed]
 
 
+def _cell_text(value: Value) -> str:
+    if isinstance(value, Literal):
+        return value.text
+    return {DontCare: "X", Released: "Z", Computed: "computed"}[type(value)]
+
+
 # ---- signals ------------------------------------------------------------------------------
 
 @dataclass(frozen=True, slots=True)
@@ -212,9 +218,22 @@ class Step:
 
 @dataclass(frozen=True, slots=True)
 class TableRow:
+    """One row of cells. Cells are shared value objects without spans of their own (a large
+    table repeats the same few values); `columns` gives each cell's column on the row's line."""
+
     drives: tuple[Value, ...]
     expects: tuple[Value, ...]
     span: SourceSpan | None = _span()
+    columns: tuple[int, ...] = field(default=(), compare=False, repr=False)
+
+    def cell_span(self, index: int) -> SourceSpan | None:
+        """The span of cell `index`, counting drive cells first, then expect cells."""
+        if self.span is None or index >= len(self.columns):
+            return self.span
+        cells = self.drives + self.expects
+        width = len(_cell_text(cells[index]))
+        column = self.columns[index]
+        return SourceSpan(self.span.file, self.span.line, column, self.span.line, column + width)
 
 
 @dataclass(frozen=True, slots=True)

@@ -9,9 +9,11 @@ a plan: per step, the modes and the drives and expectations resolved to single n
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from fractions import Fraction
+from itertools import chain
 from typing import Iterable, Sequence
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
@@ -19,6 +21,7 @@ from ..ir import Override
 from ..models.board import Board
 from ..safety_checks import CHECKS as SAFETY_CHECKS
 from . import ast
+from .bulk import collector_paused
 from .includes import ProgramFiles
 from .resolve import BitRef, Scope, observes_pins
 from .values import DRIVE, EXPECT, READ, WRITE, frequency_in_hz, time_in_seconds, value_bits
@@ -155,6 +158,12 @@ def _setting(item: ast.TopItem) -> str:
 def check_program(files: ProgramFiles, header: Header, board: Board,
                   diagnostics: Diagnostics) -> ProgramPlan:
     """Check every test against the board and return the plan the lowering turns into IR."""
+    with collector_paused():
+        return _check_program(files, header, board, diagnostics)
+
+
+def _check_program(files: ProgramFiles, header: Header, board: Board,
+                   diagnostics: Diagnostics) -> ProgramPlan:
     scope = Scope(board)
     scope.declare_groups((i for i in files.items if isinstance(i, ast.GroupDecl)), diagnostics)
     default = _check_default(header, scope, diagnostics)
@@ -353,8 +362,8 @@ class _TestChecker:
         span = value.span if value.span is not None else target.span
         into.append((target, [(bit, char, span) for bit, char in zip(bits, values)]))
 
-    def no_conflicts(self, assigned: list[tuple[ast.Signal, list[BitValue]]], what: str,
-                     step: str) -> tuple[BitValue, ...]:
+    def no_conflicts(self, assigned: Sequence[tuple[ast.Signal, Sequence[BitValue]]], what: str,
+                     step: str, where: SourceSpan | None = None) -> tuple[BitValue, ...]:
         """Two different values for one net in one step is an error; repeats are merged."""
         seen: dict[str, BitValue] = {}
         flat: list[BitValue] = []
@@ -368,8 +377,9 @@ class _TestChecker:
                 elif previous[1] != value:
                     verb = "driven" if what == "drives" else "expected"
                     self.diag.error(f"{bit.key} is {verb} to two different values in step {step}: "
-                                    f"{previous[1]} and {value}", span,
-                                    hint=f"the other value is written at {previous[2]}")
+                                    f"{previous[1]} and {value}", span or where,
+                                    hint=f"the other value is written at {previous[2]}"
+                                    if previous[2] is not None else None)
         return tuple(flat)
 
     def check_drivable(self, signal: ast.Signal, bits: list[BitValue],
@@ -549,7 +559,7 @@ class _TestChecker:
             return
         overlapping_drives = _overlap(drive_cols)
         overlapping_expects = _overlap(expect_cols)
-        memo: dict[tuple, str] = {}
+        memo: dict[tuple, tuple[BitValue, ...]] = {}
         n_drive, n_expect = len(drive_cols), len(expect_cols)
         for number, row in enumerate(table.rows, start=1):
             if table.name is None:
@@ -561,36 +571,39 @@ class _TestChecker:
                 self.diag.error(f"the row has {len(row.drives)} drive and {len(row.expects)} expect "
                                 f"cells; the table has {n_drive} and {n_expect} columns", row.span)
                 continue
-            drives = self.row_cells(row.drives, drive_cols, table.drive_columns, DRIVE, memo, 0)
-            expects = self.row_cells(row.expects, expect_cols, table.expect_columns, EXPECT, memo,
-                                     n_drive)
+            drives = self.row_cells(row, row.drives, drive_cols, table.drive_columns, DRIVE, memo, 0)
+            expects = self.row_cells(row, row.expects, expect_cols, table.expect_columns, EXPECT,
+                                     memo, n_drive)
             if drives is None or expects is None:
                 continue
-            flat_drives = tuple(v for col in drives for v in col[1])
-            flat_expects = tuple(v for col in expects for v in col[1])
+            flat_drives = tuple(chain.from_iterable(entries for _, entries in drives))
+            flat_expects = tuple(chain.from_iterable(entries for _, entries in expects))
             if overlapping_drives:
-                flat_drives = self.no_conflicts(drives, "drives", name)
+                flat_drives = self.no_conflicts(drives, "drives", name, row.span)
             if overlapping_expects:
-                flat_expects = self.no_conflicts(expects, "expects", name)
+                flat_expects = self.no_conflicts(expects, "expects", name, row.span)
             self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span))
         if table.rows:
             self.unused_modes.clear()
 
-    def row_cells(self, cells: Sequence[ast.Value], columns: list, signals: Sequence[ast.Signal],
-                  role: str, memo: dict, offset: int) -> list[tuple[ast.Signal, list[BitValue]]] | None:
-        out: list[tuple[ast.Signal, list[BitValue]]] = []
+    def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list,
+                  signals: Sequence[ast.Signal], role: str, memo: dict,
+                  offset: int) -> list[tuple[ast.Signal, tuple[BitValue, ...]]] | None:
+        """Each cell's bits. Cells carry no span of their own, so neither do their entries,
+        and the entries of equal cells in one column are shared between rows."""
+        out: list[tuple[ast.Signal, tuple[BitValue, ...]]] = []
         ok = True
         for index, (cell, bits, signal) in enumerate(zip(cells, columns, signals)):
-            memo_key = (offset + index, type(cell), getattr(cell, "radix", 0), getattr(cell, "digits", ""))
-            values = memo.get(memo_key)
-            if values is None:
-                values = value_bits(cell, len(bits), role, signal_text(signal), self.diag)
+            memo_key = (offset + index, cell)
+            entries = memo.get(memo_key)
+            if entries is None:
+                placed = dataclasses.replace(cell, span=row.cell_span(offset + index))
+                values = value_bits(placed, len(bits), role, signal_text(signal), self.diag)
                 if values is None:
                     ok = False
                     continue
-                memo[memo_key] = values
-            span = cell.span
-            out.append((signal, [(bit, char, span) for bit, char in zip(bits, values)]))
+                entries = memo[memo_key] = tuple((bit, char, None) for bit, char in zip(bits, values))
+            out.append((signal, entries))
         return out if ok else None
 
 

@@ -5,6 +5,9 @@ sorted by target, with Z entries kept so that a release stays visible. Every dri
 scan pin that drives it in that step's modes — the user's pin, else the first capable device
 in chain order — or None when, in these modes, no device can (a drive stated in this very
 step was already checked; one that persists from an earlier step simply waits for a driver).
+
+Drives and expectations written in a vector table carry no span of their own (the step's span
+is the row); being equal, they are shared between rows, which keeps large tables small.
 """
 
 from __future__ import annotations
@@ -12,6 +15,7 @@ from __future__ import annotations
 from ..diagnostics import SourceSpan
 from ..ir import Drive, Expect, Program, RegisterRead, RegisterWrite, Step, Test, TestItem, Wait
 from ..models.board import Board
+from .bulk import collector_paused
 from .checks import BitValue, ProgramPlan, StepPlan, TestPlan, WaitPlan
 from .resolve import Scope
 
@@ -23,7 +27,8 @@ def lower_program(plan: ProgramPlan, board: Board, source: str, board_path: str,
     """The IR of a checked program; `source` and `board_path` as the caller wants them shown."""
     scope = Scope(board)
     header = plan.header
-    tests = tuple(_lower_test(test, scope) for test in plan.tests)
+    with collector_paused():
+        tests = tuple(_lower_test(test, scope) for test in plan.tests)
     tck = float(header.tck_hz) if header.tck_hz is not None else None
     return Program(source, board_path, tck, header.default_instruction, tests, header.end_state,
                    header.fight_limit_s, span, dict(header.spans))
@@ -32,6 +37,7 @@ def lower_program(plan: ProgramPlan, board: Board, source: str, board_path: str,
 def _lower_test(test: TestPlan, scope: Scope) -> Test:
     state: dict[str, BitValue] = {}
     made: dict[str, tuple[BitValue, str | None, Drive]] = {}
+    shared: dict[tuple, Drive | Expect] = {}
     modes_of: dict[tuple[tuple[str, str], ...], dict[str, str]] = {}
     items: list[TestItem] = []
     previous: tuple[tuple[tuple[str, str], ...], tuple[Drive, ...]] | None = None
@@ -46,9 +52,9 @@ def _lower_test(test: TestPlan, scope: Scope) -> Test:
             modes = modes_of.get(item.modes)
             if modes is None:
                 modes = modes_of.setdefault(item.modes, dict(item.modes))
-            drives = _drive_state(state, made, scope, item.modes, modes)
+            drives = _drive_state(state, made, shared, scope, item.modes, modes)
         previous = (item.modes, drives)
-        expects = tuple(sorted((Expect(bit.target, bit.is_pin, value, span)
+        expects = tuple(sorted((_expect(shared, bit.target, bit.is_pin, value, span)
                                 for bit, value, span in item.expects), key=_target))
         writes = tuple(RegisterWrite(a.ref, a.register, a.bits, a.span) for a in item.writes)
         reads = tuple(RegisterRead(a.ref, a.register, a.bits, a.span) for a in item.reads)
@@ -70,8 +76,8 @@ def _apply(state: dict[str, BitValue], step: StepPlan) -> bool:
 
 
 def _drive_state(state: dict[str, BitValue], made: dict[str, tuple[BitValue, str | None, Drive]],
-                 scope: Scope, modes_key: tuple[tuple[str, str], ...],
-                 modes: dict[str, str]) -> tuple[Drive, ...]:
+                 shared: dict[tuple, Drive | Expect], scope: Scope,
+                 modes_key: tuple[tuple[str, str], ...], modes: dict[str, str]) -> tuple[Drive, ...]:
     drives = []
     for key, entry in state.items():
         bit, value, span = entry
@@ -80,11 +86,28 @@ def _drive_state(state: dict[str, BitValue], made: dict[str, tuple[BitValue, str
         if cached is not None and cached[0] is entry and cached[1] == driver:
             drives.append(cached[2])
             continue
-        drive = Drive(bit.target, bit.is_pin, value, driver, span)
+        if span is None:
+            share_key = ("drive", bit.target, bit.is_pin, value, driver)
+            drive = shared.get(share_key)  # type: ignore[assignment]
+            if drive is None:
+                drive = shared.setdefault(share_key, Drive(bit.target, bit.is_pin, value, driver))
+        else:
+            drive = Drive(bit.target, bit.is_pin, value, driver, span)
         made[key] = (entry, driver, drive)
         drives.append(drive)
     drives.sort(key=_target)
     return tuple(drives)
+
+
+def _expect(shared: dict[tuple, Drive | Expect], target: str, is_pin: bool, value: str,
+            span: SourceSpan | None) -> Expect:
+    if span is not None:
+        return Expect(target, is_pin, value, span)
+    key = ("expect", target, is_pin, value)
+    found = shared.get(key)
+    if found is None:
+        found = shared.setdefault(key, Expect(target, is_pin, value))
+    return found  # type: ignore[return-value]
 
 
 def _target(node: Drive | Expect) -> str:

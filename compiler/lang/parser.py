@@ -21,6 +21,7 @@ from lark.exceptions import (
 
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, read_source
 from . import ast
+from .bulk import collector_paused
 
 __all__ = ["parse_text", "parse_source", "parse_file", "grammar_parser"]
 
@@ -78,7 +79,8 @@ def parse_source(text: str, file: str, diagnostics: Diagnostics) -> ast.Program 
     # Every statement ends at a line end; a final line without one still ends there.
     padded = text if text.endswith("\n") else text + "\n"
     try:
-        program: ast.Program = grammar_parser(file).parse(padded)
+        with collector_paused():
+            program: ast.Program = grammar_parser(file).parse(padded)
     except VisitError as wrapped:  # lark wraps what the transformer raises
         error = wrapped.orig_exc
         if isinstance(error, _SyntaxProblem):
@@ -345,18 +347,26 @@ class _ToAst(Transformer):
         row: Token = c[0]
         text = row.value
         arrow = text.index("->")
-        drives = self._cells(row, text[:arrow], 0)
-        expects = self._cells(row, text[arrow + 2:], arrow + 2)
+        columns: list[int] = []
+        drives = self._cells(row, text[:arrow], 0, columns)
+        expects = self._cells(row, text[arrow + 2:], arrow + 2, columns)
         end = len(text.rstrip())
         span = SourceSpan(self.file, row.line, row.column, row.line, row.column + end)
-        return ast.TableRow(drives, expects, span)
+        return ast.TableRow(drives, expects, span, tuple(columns))
 
-    def _cells(self, row: Token, text: str, offset: int) -> tuple[ast.Value, ...]:
+    def _cells(self, row: Token, text: str, offset: int, columns: list[int]) -> tuple[ast.Value, ...]:
         cells = []
         for match in _CELL.finditer(text):
             column = row.column + offset + match.start()
-            span = SourceSpan(self.file, row.line, column, row.line, column + len(match.group()))
-            cells.append(_cell_value(match.group(), span))
+            cell = match.group()
+            value = _cell_value(cell)
+            if value is None:
+                span = SourceSpan(self.file, row.line, column, row.line, column + len(cell))
+                raise _SyntaxProblem(Diagnostic(
+                    "error", f"'{cell}' is not a value", span,
+                    "0, 1, X, Z, a binary (0b...), hex (0x...) or decimal number, or 'computed'"))
+            cells.append(value)
+            columns.append(column)
         return tuple(cells)
 
     # signals and values
@@ -398,7 +408,7 @@ class _ToAst(Transformer):
         return ast.Quantity(c[0].value, c[1].value, self._between(c[0], c[1]), self._tok(c[1]))
 
 
-def _literal(text: str, span: SourceSpan) -> ast.Literal:
+def _literal(text: str, span: SourceSpan | None) -> ast.Literal:
     """Classify a number by its prefix; digits are checked later against the target's width."""
     lowered = text[:2].lower()
     if lowered == "0b" and len(text) > 2:
@@ -408,16 +418,16 @@ def _literal(text: str, span: SourceSpan) -> ast.Literal:
     return ast.Literal(10, text.upper(), span)
 
 
-def _cell_value(text: str, span: SourceSpan) -> ast.Value:
+@lru_cache(maxsize=4096)
+def _cell_value(text: str) -> ast.Value | None:
+    """A table cell's value, shared by every cell written the same way (None: not a value)."""
     upper = text.upper()
     if upper == "X":
-        return ast.DontCare(span)
+        return ast.DontCare()
     if upper == "Z":
-        return ast.Released(span)
+        return ast.Released()
     if text == "computed":
-        return ast.Computed(span)
+        return ast.Computed()
     if not text[0].isdigit():
-        raise _SyntaxProblem(Diagnostic(
-            "error", f"'{text}' is not a value", span,
-            "0, 1, X, Z, a binary (0b...), hex (0x...) or decimal number, or 'computed'"))
-    return _literal(text, span)
+        return None
+    return _literal(text, None)
