@@ -18,6 +18,7 @@ from scanloom.backend.cycles import lay_out_cycles
 from scanloom.backend.shiftfile import locate_json_value, read_shift_file, shift_file_from_data
 from scanloom.backend.writers.json_writer import render_shift_file, write_shift_file
 from scanloom.diagnostics import ScanloomError
+from scanloom.sim.replay import replay
 
 
 def _plain(value):
@@ -84,7 +85,7 @@ def test_another_schema_version_is_refused(tmp_path: Path) -> None:
     data = _data()
     data["version"] = 2
     message = _error(_write(tmp_path, data))
-    assert re.match(r"^.*prog.json:3:13: error: version: shift file version the number 2 is not "
+    assert re.match(r"^.*prog.json:3:13: error: version: shift file version 2 is not "
                     r"supported\n(.*\n)*  expected: version 1; write the file again with this scanloom$",
                     message)
 
@@ -128,6 +129,13 @@ def test_schema_violations_name_the_field_and_its_place(tmp_path: Path, edit, pa
     assert re.match(rf"^.*prog\.json:\d+:\d+: error: {pattern}", message), message
 
 
+def test_an_empty_chain_is_refused(tmp_path: Path) -> None:
+    data = _data()
+    data["chain"] = []
+    assert re.match(r"^.*prog\.json:\d+:\d+: error: chain: the chain has no devices",
+                    _error(_write(tmp_path, data)))
+
+
 def test_the_location_is_the_offending_value() -> None:
     text = '{"a": [1, {"b": "x", "c": [true, null]}], "d": 2}'
     assert text[locate_json_value(text, ("a", 1, "c", 1)):].startswith("null")
@@ -163,6 +171,8 @@ def test_random_edits_never_raise_anything_but_our_error(tmp_path: Path, data) -
     path = tmp_path / "fuzzed.json"
     path.write_text(text)
     try:
-        read_shift_file(path)
+        program, stream = read_shift_file(path)
     except ScanloomError as error:
         assert error.render()
+        return
+    replay(program, stream)  # whatever a readable file says, the replay reports, never raises

@@ -119,7 +119,7 @@ def test_limit_shortens_the_list(tmp_path: Path) -> None:
     ("{not json", r".*:1:2: error: not valid JSON: Expecting property name enclosed in double quotes"),
     ('{"title": "a waveform"}', r'.*:1:1: error: the file: not a scanloom shift file'),
     ('{"schema": "scanloom.shifts", "version": 9}',
-     r".*:1:42: error: version: shift file version the number 9 is not supported"),
+     r".*:1:42: error: version: shift file version 9 is not supported"),
 ])
 def test_unreadable_files_exit_2(tmp_path: Path, content: str | None, message: str) -> None:
     path = tmp_path / "missing.json"

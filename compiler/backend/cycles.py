@@ -166,12 +166,11 @@ def lay_out_cycles(program: ScanProgram) -> CycleStream:
             builder.idle(record.idle_clocks)
         if _needs_rest(rest, index == len(records) - 1):
             builder.go_to(rest)
-    stream = CycleStream(
+    return CycleStream(
         tms=builder.tms, tdi=builder.tdi, tdo=builder.tdo, mask=builder.mask,
         state_names=bytes(builder.states), record_starts=tuple(record_starts),
         shift_starts=tuple(shift_starts), lower_bound=scan_sequence_lower_bound(records),
     )
-    return stream
 
 
 def scan_sequence_lower_bound(records: Sequence[ShiftRecord]) -> int:

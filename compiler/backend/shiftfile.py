@@ -254,8 +254,11 @@ def _read_record(reader: _SchemaReader, value: Any, index: int) -> ShiftRecord:
                                    for key in ("device", "register", "test", "step"))))
 
     def intent_text(text: Any, at: JsonPath) -> str:
-        if not isinstance(text, str):
-            reader.fail(at, f"expected an instruction name or image, found {_describe(text)}")
+        if kind == DR_SCAN:
+            if not isinstance(text, str) or _PATTERN.fullmatch(text) is None:
+                reader.fail(at, f"expected a register image of 0, 1 and X, found {_describe(text)}")
+        elif not isinstance(text, str):
+            reader.fail(at, f"expected an instruction name, found {_describe(text)}")
         return text
 
     return ShiftRecord(
@@ -334,13 +337,15 @@ def shift_file_from_data(data: Any, *, origin: str = "<shift data>", text: str |
                     "not a scanloom shift file", expected=f"\"schema\": \"{SCHEMA}\"")
     version = root.get("version")
     if version != SCHEMA_VERSION or isinstance(version, bool):
-        reader.fail(("version",), f"shift file version {_describe(version)} is not supported",
+        reader.fail(("version",), f"shift file version {json.dumps(version)} is not supported",
                     expected=f"version {SCHEMA_VERSION}; write the file again with this scanloom")
     tck_hz = reader.field(root, "tck_hz", (), (int, float, type(None)), "a frequency in Hz or null")
     if tck_hz is not None and not tck_hz > 0:
         reader.fail(("tck_hz",), f"TCK frequency {tck_hz} is not positive")
     devices = tuple(_read_device(reader, device, ("chain", n))
                     for n, device in enumerate(reader.items(root, "chain", (), "devices")))
+    if not devices:
+        reader.fail(("chain",), "the chain has no devices", expected="at least one scan device")
     for n, device in enumerate(devices):
         if device.position != n:
             reader.fail(("chain", n, "position"), f"device {device.ref} is listed at {n} "

@@ -124,7 +124,9 @@ class _Replay:
         self.tdo, self.mask = _big(cycles.tdo), _big(cycles.mask)
         self.shift_starts = cycles.shift_starts
         self.devices = [ReplayDevice(device) for device in program.chain.devices]
-        self.taps = [TapController() for _ in self.devices]
+        # One controller per device; TMS and TCK are bussed to all of them (a chain of no
+        # devices still has the player's view of the TAP).
+        self.taps = [TapController() for _ in self.devices] or [TapController()]
         self.scan_records = [i for i, r in enumerate(self.records) if r.kind in (IR_SCAN, DR_SCAN)]
         self.scan_number = {record: number for number, record in enumerate(self.scan_records)}
         self.scans_seen = 0
