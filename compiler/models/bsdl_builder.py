@@ -7,6 +7,7 @@ Errors are collected for the whole file before the caller raises, so one run sho
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass
 from typing import Callable, TypeVar
@@ -35,6 +36,8 @@ USED_ATTRIBUTES = frozenset({
     "INTEST_EXECUTION",
 })
 
+MAX_INSTRUCTION_LENGTH = 1024
+MAX_REGISTER_LENGTH = 1_000_000
 _STANDARD_PACKAGE = re.compile(r"STD_1149_1_\d{4}")
 # Packages of the standards themselves, as opposed to a maker's cell package.
 _STANDARDS_PACKAGES = re.compile(r"STD_1149_\d+_\d{4}")
@@ -120,20 +123,20 @@ class _DeviceBuilder(RegisterReading):
                                    code="bsdl-attribute")
             return None
 
-    def integer(self, name: str, minimum: int) -> int | None:
+    def integer(self, name: str, minimum: int, maximum: int) -> int | None:
         spec = self.attributes.get(name)
         if spec is None:
             self.missing(name)
             return None
         value = spec.value
-        if not isinstance(value, NumberValue) or not value.text.isdigit():
+        if not isinstance(value, NumberValue) or not value.text.isdigit() or len(value.text) > 9:
             self.diagnostics.error(f"{name} needs a whole number", self.span_of(value),
                                    expected="a whole number such as 4", code="bsdl-attribute")
             return None
         number = int(value.text)
-        if number < minimum:
+        if not minimum <= number <= maximum:
             self.diagnostics.error(f"{name} is {number}", self.span_of(value),
-                                   expected=f"at least {minimum}", code="bsdl-check")
+                                   expected=f"{minimum:,} .. {maximum:,}", code="bsdl-check")
             return None
         return number
 
@@ -145,8 +148,10 @@ class _DeviceBuilder(RegisterReading):
         self.collect_attributes()
         pin_maps, pin_map_name = self.pin_maps()
         tap = self.tap()
-        ir_length = self.integer("INSTRUCTION_LENGTH", 2)  # 7.1.1 (a): at least two cells
-        boundary_length = self.integer("BOUNDARY_LENGTH", 1)
+        # 7.1.1 (a) (from memory): at least two instruction register cells. The upper bounds
+        # are sanity limits far above any device, so a damaged number cannot exhaust memory.
+        ir_length = self.integer("INSTRUCTION_LENGTH", 2, MAX_INSTRUCTION_LENGTH)
+        boundary_length = self.integer("BOUNDARY_LENGTH", 1, MAX_REGISTER_LENGTH)
         instructions = self.instructions(ir_length)
         ir_capture = self.capture(ir_length)
         private = self.private(instructions)
@@ -388,7 +393,7 @@ class _DeviceBuilder(RegisterReading):
                                    code="bsdl-tap")
             return None
         frequency, stop = value.items
-        if not isinstance(frequency, NumberValue) or frequency.value <= 0:
+        if not isinstance(frequency, NumberValue) or not 0 < frequency.value < math.inf:
             self.diagnostics.error("the TCK frequency must be a positive number",
                                    self.span_of(frequency), expected=expected, code="bsdl-tap")
             return None

@@ -39,6 +39,7 @@ DEFAULT_SELECTS = {
     "INTEST": "BOUNDARY", "IDCODE": "DEVICE_ID", "USERCODE": "DEVICE_ID", "CLAMP": "BYPASS",
     "HIGHZ": "BYPASS", "EXTEST_PULSE": "BOUNDARY", "EXTEST_TRAIN": "BOUNDARY",
 }
+MAX_USER_REGISTER = 1_000_000  # a sanity limit far above any device
 STANDARD_LENGTHS = {"BYPASS": 1, "DEVICE_ID": 32}  # 10.1.1 and 12.1.1 (from memory)
 # Cell types of the IEEE 1149.6 package (from memory); their captures are not in cells.py.
 AC_CELL_PREFIX = "AC_"
@@ -158,10 +159,10 @@ class RegisterReading:
                 continue
             else:
                 length = int(entry.length.text)
-                if length < 1 or registers.get(register, length) != length:
+                if not 1 <= length <= MAX_USER_REGISTER or registers.get(register, length) != length:
                     self.diagnostics.error(f"register `{register}` is given {length} bits",
                                            text.locate(entry.length.start, entry.length.end),
-                                           expected="one length of at least 1 bit",
+                                           expected=f"one length of 1 .. {MAX_USER_REGISTER:,} bits",
                                            code="bsdl-check")
                 registers[register] = length
             for name in entry.instructions:
@@ -271,10 +272,12 @@ class RegisterReading:
         for pattern in parsed.patterns:
             if len(pattern.text) != len(parsed.ports):
                 # B.8.6 (from memory): one pattern character per compliance-enable port.
+                count = len(parsed.ports)
                 self.diagnostics.error(
                     f"compliance pattern {pattern.text} has {len(pattern.text)} bits for "
-                    f"{len(parsed.ports)} ports", text.locate(pattern.start, pattern.end),
-                    expected=f"{len(parsed.ports)} bits", code="bsdl-check")
+                    f"{count} port{'s' if count != 1 else ''}",
+                    text.locate(pattern.start, pattern.end),
+                    expected=f"one bit per port ({count})", code="bsdl-check")
         return (CompliancePattern(tuple(ref.bit for ref in parsed.ports),
                                   tuple(p.text for p in parsed.patterns)),)
 

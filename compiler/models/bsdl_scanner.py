@@ -127,10 +127,11 @@ class AttrCursor:
 
     def expect_integer(self, what: str) -> tuple[AttrToken, int]:
         token = self.tokens[self.index]
-        if token.kind == WORD and token.text.isdigit():
+        if token.kind == WORD and token.text.isdigit() and len(token.text) <= 9:
             self.index += 1
             return token, int(token.text)
-        self.fail(token, f"expected {what}, found {describe(token)}", "a whole number")
+        self.fail(token, f"expected {what}, found {describe(token)}",
+                  "a whole number below 1,000,000,000")
 
     def expect_choice(self, choices: Sequence[str], what: str) -> tuple[AttrToken, str]:
         """A word from `choices` (case-insensitive); the error suggests the nearest choice."""

@@ -25,6 +25,7 @@ from .bsdl_ast import (
 
 __all__ = ["parse_syntax", "blank_stray_text", "bsdl_parser", "PORT_DIRECTIONS"]
 
+MAX_VECTOR_WIDTH = 65_536  # a sanity limit far above any device, against damaged numbers
 PORT_DIRECTIONS = ("IN", "OUT", "INOUT", "BUFFER", "LINKAGE")
 PORT_TYPES = ("BIT", "BIT_VECTOR")
 ENTITY_CLASSES = ("ENTITY", "SIGNAL")
@@ -65,8 +66,11 @@ def _blank(text: str, start: int, end: int) -> str:
     return text[:start] + middle + text[end:]
 
 
-def blank_stray_text(source: SourceText, diagnostics: Diagnostics) -> str:
-    """The text with any stray lines before the first design unit and after `end` blanked."""
+def blank_stray_text(source: SourceText, diagnostics: Diagnostics) -> str | None:
+    """The text with stray lines before the first design unit and after `end` blanked.
+
+    None (after an error) when no line starts a design unit: the file is not BSDL at all.
+    """
     text = source.text
     # Before: every line up to the first one whose first word starts a design unit.
     offset = 0
@@ -81,7 +85,13 @@ def blank_stray_text(source: SourceText, diagnostics: Diagnostics) -> str:
                 stray_start = offset + (len(line) - len(line.lstrip()))
         offset += len(line)
     head_end = offset
-    if stray_start is not None and head_end < len(text):
+    if head_end >= len(text):
+        where = source.span(stray_start, stray_start + 1) if stray_start is not None \
+            else source.end_span()
+        diagnostics.error("this file has no entity: it does not look like BSDL", where,
+                          expected="`entity NAME is ... end NAME;`", code="bsdl-syntax")
+        return None
+    if stray_start is not None:
         diagnostics.warning(
             "text before the first design unit is not BSDL; it is ignored",
             source.span(stray_start, stray_start + 1),
@@ -222,17 +232,32 @@ class _ToAst(Transformer):
         return PortDecl(names, direction, vector and port_range is not None, port_range,
                         meta.start_pos, meta.end_pos)
 
+    def _whole(self, token: Token) -> int:
+        """A whole number of the outer syntax; reports anything else and reads it as 0."""
+        text = str(token)
+        if text.isdigit() and len(text) <= 9:
+            return int(text)
+        self.diagnostics.error(f"`{text}` is not a bit index", self.source.span(
+            token.start_pos, token.end_pos), expected="a whole number such as 7",
+            code="bsdl-syntax")
+        return 0
+
     def port_range(self, meta, items):
         left, word, right = items
         direction = self._choose(word, ("TO", "DOWNTO"), "range direction")
-        left_value, right_value = int(float(left)), int(float(right))
-        descending = direction == "DOWNTO"
-        if direction is not None and ((descending and left_value < right_value)
-                                      or (not descending and left_value > right_value)):
+        left_value, right_value = self._whole(left), self._whole(right)
+        descending = direction == "DOWNTO" if direction else left_value > right_value
+        if (descending and left_value < right_value) or (not descending and left_value > right_value):
             self.diagnostics.error(
                 f"the range ({left} {word} {right}) is empty",
                 self.source.span(meta.start_pos, meta.end_pos),
                 expected="`(low to high)` or `(high downto low)`", code="bsdl-syntax")
+            right_value = left_value
+        if abs(right_value - left_value) >= MAX_VECTOR_WIDTH:
+            self.diagnostics.error(
+                f"the range ({left} {word} {right}) has more than {MAX_VECTOR_WIDTH:,} bits",
+                self.source.span(meta.start_pos, meta.end_pos),
+                expected="a vector of a real device's width", code="bsdl-syntax")
             right_value = left_value
         return PortRange(left_value, descending, right_value, meta.start_pos, meta.end_pos)
 
@@ -256,7 +281,7 @@ class _ToAst(Transformer):
         return tuple(items)
 
     def target(self, meta, items):
-        index = int(float(items[1])) if len(items) > 1 else None
+        index = self._whole(items[1]) if len(items) > 1 else None
         return Target(_ident(items[0]), index, meta.start_pos, meta.end_pos)
 
     def attribute_decl(self, meta, items):
@@ -347,6 +372,8 @@ def parse_syntax(source: SourceText, diagnostics: Diagnostics) -> BsdlFile | Non
     """The file's tree, or None after reporting a syntax error into `diagnostics`."""
     parser = bsdl_parser()
     text = blank_stray_text(source, diagnostics)
+    if text is None:
+        return None
     try:
         tree = parser.parse(text)
     except UnexpectedInput as error:
