@@ -5,12 +5,16 @@ from __future__ import annotations
 import pytest
 from bitarray import bitarray
 from chainfactory import make_device
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from scanloom.backend.captures import CaptureResolver
 from scanloom.backend.images import (
-    BYPASS, CLAMP, DEVICE_ID, DRIVE, INTEST, OBSERVE, USER, build_image, device_tables,
-    from_msb_string, mask_from_msb_string, mode_kind, preload_instruction, to_msb_string,
+    BYPASS, CLAMP, DEVICE_ID, DRIVE, INTEST, OBSERVE, USER, ChainImages, build_image,
+    device_tables, from_msb_string, mask_from_msb_string, mode_kind, preload_instruction,
+    to_msb_string,
 )
+from scanloom.ir import Drive
 from scanloom.models.cells import PIN, UNKNOWN, UPDATE
 
 # Cells 0..6: two OUTPUT3 outputs sharing control 2; an OUTPUT2; an internal cell with safe 1;
@@ -177,3 +181,57 @@ def test_unknown_cell_type_captures_x_and_is_remembered() -> None:
     cell = tables.observers["VQ"][0]
     assert resolver.capture(3, tables, cell, OBSERVE, "SAMPLE", tables.safe) == UNKNOWN
     assert resolver.unknown_types == [("U7", "VENDOR_Q")]
+
+
+# ------------------------------------------------------------------------------ chain-wide images
+
+@st.composite
+def _devices_and_drives(draw):
+    """A few random devices (outputs with own, shared or no controls) and random drives."""
+    devices = []
+    for d in range(draw(st.integers(1, 3))):
+        specs = []
+        number = 0
+        for group in range(draw(st.integers(1, 4))):
+            shared = draw(st.integers(0, 3))  # 0: two-state outputs, else outputs per control
+            if shared == 0:
+                specs.append((number, "BC_2", f"K{group}", "OUTPUT2", draw(st.sampled_from("01X"))))
+                number += 1
+                continue
+            control = number
+            disable = draw(st.integers(0, 1))
+            specs.append((control, "BC_1", "*", "CONTROL", draw(st.sampled_from("01X"))))
+            number += 1
+            for j in range(shared):
+                function = draw(st.sampled_from(["OUTPUT3", "BIDIR"]))
+                specs.append((number, "BC_7" if function == "BIDIR" else "BC_1", f"P{group}_{j}",
+                              function, draw(st.sampled_from("01X")), control, disable, "Z"))
+                number += 1
+        devices.append((f"U{d}", make_device(f"D{d}", 3, specs)))
+    kinds = tuple(draw(st.sampled_from([DRIVE, CLAMP, OBSERVE, BYPASS])) for _ in devices)
+    drives = []
+    for ref, device in devices:
+        for port in sorted(device_tables(ref, device).drivers):
+            if draw(st.booleans()):
+                drives.append(Drive(port, False, draw(st.sampled_from("01Z")), f"{ref}.{port}"))
+    return devices, kinds, drives
+
+
+@settings(max_examples=150, deadline=None)
+@given(_devices_and_drives())
+def test_chain_images_agree_with_the_per_device_reference(case) -> None:
+    devices, kinds, drives = case
+    tables = [device_tables(ref, device) for ref, device in devices]
+    built = ChainImages(tables).build(kinds, drives)
+    for idx, (table, kind) in enumerate(zip(tables, kinds)):
+        mine = [(d.driver.partition(".")[2], d.value) for d in drives
+                if d.driver.partition(".")[0] == table.ref]
+        if kind in (DRIVE, CLAMP, OBSERVE):
+            reference = build_image(table, kind, mine)
+            assert built.images[idx] == reference.image
+            if kind != OBSERVE:
+                start = ChainImages(tables).starts[idx]
+                assert built.chain_image[start:start + table.length] == reference.image
+                assert set(reference.problems) <= set(built.problems)
+        else:
+            assert built.images[idx] is None

@@ -115,6 +115,7 @@ class ExpectationTable:
     dyn_latch_driving: frozenbitarray
     dyn_latch_idle: frozenbitarray
     unobservable: tuple[int, ...]  # expectations no cell can observe
+    dynamic_only: tuple[int, ...]  # expectations observed by dynamic entries alone
 
 
 def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], targets: list[str],
@@ -129,8 +130,10 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
     latch_owner: list[int] = []
     dyn: list[tuple[int, int, int, bool, str, str]] = []
     unobservable: list[int] = []
+    dynamic_only: list[int] = []
     for owner, (target, pin) in enumerate(zip(targets, is_pin)):
         observed = False
+        static = False
         for idx, cell in receivers(target, pin):
             kind = kinds[idx]
             if kind not in BOUNDARY_KINDS:
@@ -150,13 +153,15 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
             if idle == PIN:
                 pin_position.append(position)
                 pin_owner.append(owner)
-                observed = True
+                observed = static = True
             elif idle == UPDATE:
                 latch_position.append(position)
                 latch_owner.append(owner)
-                observed = True
+                observed = static = True
         if not observed:
             unobservable.append(owner)
+        elif not static:
+            dynamic_only.append(owner)
 
     def bits(values: list[bool]) -> frozenbitarray:
         return frozenbitarray(values) if values else frozenbitarray()
@@ -177,6 +182,7 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
         dyn_latch_driving=bits([d[4] == UPDATE for d in dyn]),
         dyn_latch_idle=bits([d[5] == UPDATE for d in dyn]),
         unobservable=tuple(unobservable),
+        dynamic_only=tuple(dynamic_only),
     )
 
 
@@ -189,12 +195,13 @@ def values_as_bits(values: str) -> tuple[bitarray, bitarray]:
 
 
 def compare_expectations(table: ExpectationTable, values: str, chain_image: bitarray,
-                         tdi: bitarray, tdo: bitarray, mask: bitarray) -> None:
+                         tdi: bitarray, tdo: bitarray, mask: bitarray) -> list[int]:
     """Set the expected bits and the compare mask of a scan for one step's expectations.
 
     `values` holds 0/1/X per expectation of `table.targets`; `chain_image` is the step's
     chain-wide image (for the control cells of dynamic entries); `tdi` is what the step
-    shifted (the content of every update latch).
+    shifted (the content of every update latch). Returns the expectations (0/1) that only
+    dynamic entries observe and that none of them can capture in this step.
     """
     ones, compared = values_as_bits(values)
     owner_compared = bitarray(map(compared.__getitem__, table.pin_owner))
@@ -203,6 +210,7 @@ def compare_expectations(table: ExpectationTable, values: str, chain_image: bita
     tdo[list(compress(table.pin_position, owner_one))] = 1
     latches = list(compress(table.latch_position,
                             bitarray(map(compared.__getitem__, table.latch_owner))))
+    unobserved: list[int] = []
     if table.dyn_position:
         driving = bitarray(map(chain_image.__getitem__, table.dyn_control))
         driving ^= table.dyn_disable  # enabled where the control cell differs from its disable value
@@ -214,6 +222,10 @@ def compare_expectations(table: ExpectationTable, values: str, chain_image: bita
         mask[list(compress(table.dyn_position, dyn_compared & as_pin))] = 1
         tdo[list(compress(table.dyn_position, dyn_one & as_pin))] = 1
         latches.extend(compress(table.dyn_position, dyn_compared & as_latch))
+        if table.dynamic_only:
+            seen = set(compress(table.dyn_owner, as_pin | as_latch))
+            unobserved = [owner for owner in table.dynamic_only
+                          if compared[owner] and owner not in seen]
     if latches:
         # A cell that captures its own update latch reads back what this step shifted.
         latch = bitarray(len(mask))
@@ -222,3 +234,4 @@ def compare_expectations(table: ExpectationTable, values: str, chain_image: bita
         mask |= latch
         tdo &= ~latch
         tdo |= tdi & latch
+    return unobserved

@@ -317,7 +317,7 @@ class StepImages:
     """Every device's image for a step, the chain-wide image behind them, and problems."""
 
     images: list[frozenbitarray | None]  # None outside boundary and clamp modes
-    chain_image: frozenbitarray
+    chain_image: frozenbitarray  # EXTEST and CLAMP images side by side (others: unused)
     problems: list[str]
 
 
