@@ -164,7 +164,7 @@ class _Scheduler:
                       "its cells capture X and are not compared")
         return ScanProgram(
             source=self.program.source,
-            board=self.board.name,
+            board=self.board.path,  # the shift file names the board file, relative to its folder
             tck_hz=self.program.tck_hz,
             chain=build_chain_map(self.board),
             records=tuple(self.records),
