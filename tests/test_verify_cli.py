@@ -132,13 +132,13 @@ def test_unreadable_files_exit_2(tmp_path: Path, content: str | None, message: s
 
 
 def test_compile_then_verify_an_example_in_a_subprocess(tmp_path: Path) -> None:
-    # End to end through the installed command: the demo board's interconnect program.
-    program = REPO / "examples" / "irrigation" / "interconnect.loom"
+    # End to end through the installed command: the README's demo program on the demo board.
+    program = REPO / "examples" / "irrigation" / "valve_nets.loom"
     compiled = subprocess.run([sys.executable, "-m", "scanloom.cli", "compile", str(program),
                                "--out", str(tmp_path), "--format", "json"],
                               capture_output=True, text=True)
     assert compiled.returncode == 0, compiled.stderr
     verified = subprocess.run([sys.executable, "-m", "scanloom.cli", "verify",
-                               str(tmp_path / "interconnect.json")], capture_output=True, text=True)
+                               str(tmp_path / "valve_nets.json")], capture_output=True, text=True)
     assert verified.returncode == 0, verified.stderr
-    assert re.fullmatch(r".*interconnect\.json: replay agrees: \d+ TCK, \d+ scans; .*\n", verified.stdout)
+    assert re.fullmatch(r".*valve_nets\.json: replay agrees: \d+ TCK, \d+ scans; .*\n", verified.stdout)
