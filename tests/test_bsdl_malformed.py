@@ -214,3 +214,16 @@ def test_strict_diagnostics_turn_stray_text_into_an_error() -> None:
     first = caught.value.diagnostics[0]
     assert first.message == "text before the first design unit is not BSDL; it is ignored"
     assert str(first.span) == f"{FILE}:1:1"
+
+
+def test_locations_hold_in_a_crlf_latin1_file() -> None:
+    data = (FIXTURES / "kelpbed_ctl8_1990.bsd").read_bytes()
+    damaged = data.replace(b"CONTROL,0", b"CONTROL,2")
+    text = damaged.decode("latin-1")
+    with pytest.raises(ScanloomError) as caught:
+        parse_bsdl(text, "kelpbed.bsd", Diagnostics())
+    first = next(d for d in caught.value.diagnostics if d.severity == "error")
+    # B.8.14 (from memory): the safe value is 0, 1 or X.
+    assert re.fullmatch(r"`2` is not a safe value \(0, 1 or X\)", first.message)
+    assert str(first.span) == "kelpbed.bsd:37:19"
+    assert '    "3(BC_1,*,CONTROL,2),' in caught.value.render()

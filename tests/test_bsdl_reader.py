@@ -265,3 +265,54 @@ def test_tabs_and_spaces_do_not_change_the_model() -> None:
     second = parse_bsdl(squeezed, "b.bsd", Diagnostics())
     assert first.cells == second.cells and first.pin_maps == second.pin_maps
     assert first.instructions == second.instructions
+
+
+# -- the outer syntax ----------------------------------------------------------------------
+
+def test_grammar_is_free_of_lalr_conflicts(caplog: pytest.LogCaptureFixture) -> None:
+    # lark resolves a shift/reduce conflict silently (as shift) and only logs it in debug
+    # mode; a conflict-free LALR(1) grammar logs nothing.
+    import logging
+
+    from lark import Lark
+    from lark import logger as lark_logger
+
+    lark_logger.addHandler(caplog.handler)
+    previous = lark_logger.level
+    lark_logger.setLevel(logging.DEBUG)
+    try:
+        Lark.open_from_package("scanloom.grammar", "bsdl.lark", parser="lalr", debug=True,
+                               propagate_positions=True, maybe_placeholders=False)
+    finally:
+        lark_logger.setLevel(previous)
+        lark_logger.removeHandler(caplog.handler)
+    assert not [r for r in caplog.records if "conflict" in r.getMessage().lower()]
+
+
+@pytest.mark.parametrize("edition", ["STD_1149_1_1990", "STD_1149_1_1994", "STD_1149_1_2001",
+                                     "STD_1149_1_2013"])
+def test_the_standard_package_names_the_edition(edition: str) -> None:
+    text = (FIXTURES / "tidepool_io16.bsd").read_text()
+    text = text.replace("use STD_1149_1_2001.all;", f"use {edition.lower()}.ALL;")
+    assert parse_bsdl(text, "t.bsd", Diagnostics()).standard == edition
+
+
+def test_joined_strings_map_back_to_the_file_character_by_character() -> None:
+    from scanloom.models.bsdl_ast import SourceText, StringValue
+    from scanloom.models.bsdl_syntax import parse_syntax
+
+    text = ('entity E is port (A : in bit);\n'
+            '  attribute DESIGN_WARNING of E : entity is\n'
+            '    "ab""c" &   -- a comment with "quotes"; and a semicolon\n'
+            '\n'
+            '    "x"\n'
+            '    &\n'
+            '    "" & "de""""f";\n'
+            'end E;')
+    tree = parse_syntax(SourceText("e.bsd", text), Diagnostics())
+    assert tree is not None
+    value = tree.entity.attributes[0].value
+    assert isinstance(value, StringValue)
+    assert value.text == 'ab"cx' 'de""f'
+    for index, char in enumerate(value.text):
+        assert text[value.file_offset(index)] == char

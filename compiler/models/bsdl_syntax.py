@@ -13,6 +13,7 @@ from functools import lru_cache
 from typing import Any, Iterable
 
 from lark import Lark, Token, Transformer, v_args
+from lark.tree import Meta
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
 from lark.lexer import PatternStr
 
@@ -161,10 +162,10 @@ class _ToAst(Transformer):
             suggestions=[s.lower() for s in nearest(word, allowed)], code="bsdl-syntax")
         return None
 
-    def start(self, meta, items):
+    def start(self, meta: Meta, items: list[Any]) -> BsdlFile:
         return BsdlFile(tuple(items[:-1]), items[-1])
 
-    def _package(self, meta, items, body: bool) -> PackageDecl:
+    def _package(self, meta: Meta, items: list[Any], body: bool) -> PackageDecl:
         names = [t for t in items if _is_token(t, "NAME")]
         decls = tuple(i for i in items if not isinstance(i, Token))
         name = _ident(names[0])
@@ -172,10 +173,10 @@ class _ToAst(Transformer):
             self._end_mismatch(names[1], name.text, "package")
         return PackageDecl(name, body, decls, meta.start_pos, meta.end_pos)
 
-    def package_decl(self, meta, items):
+    def package_decl(self, meta: Meta, items: list[Any]) -> PackageDecl:
         return self._package(meta, items, False)
 
-    def package_body(self, meta, items):
+    def package_body(self, meta: Meta, items: list[Any]) -> PackageDecl:
         return self._package(meta, items, True)
 
     def _end_mismatch(self, token: Token, expected: str, what: str) -> None:
@@ -184,7 +185,7 @@ class _ToAst(Transformer):
             self.source.span(token.start_pos, token.end_pos), expected=f"`end {expected};`",
             code="bsdl-syntax")
 
-    def entity(self, meta, items):
+    def entity(self, meta: Meta, items: list[Any]) -> EntityDecl:
         names = [t for t in items if _is_token(t, "NAME")]
         name = _ident(names[0])
         if len(names) > 1 and names[1].upper() != name.text:
@@ -202,18 +203,18 @@ class _ToAst(Transformer):
             tuple(i for i in body if isinstance(i, ConstantDecl)),
             meta.start_pos, meta.end_pos)
 
-    def generic_clause(self, meta, items):
+    def generic_clause(self, meta: Meta, items: list[Any]) -> tuple[GenericDecl, ...]:
         return tuple(i for i in items if isinstance(i, GenericDecl))
 
-    def generic_decl(self, meta, items):
+    def generic_decl(self, meta: Meta, items: list[Any]) -> GenericDecl:
         names, type_token = items[0], items[1]
         default = items[2] if len(items) > 2 else None
         return GenericDecl(names, _ident(type_token), default, meta.start_pos, meta.end_pos)
 
-    def port_clause(self, meta, items):
+    def port_clause(self, meta: Meta, items: list[Any]) -> tuple[PortDecl, ...]:
         return tuple(i for i in items if isinstance(i, PortDecl))
 
-    def port_decl(self, meta, items):
+    def port_decl(self, meta: Meta, items: list[Any]) -> PortDecl:
         names, direction_token, type_token = items[0], items[1], items[2]
         port_range = items[3] if len(items) > 3 else None
         direction = self._choose(direction_token, PORT_DIRECTIONS, "port direction") or "IN"
@@ -242,7 +243,7 @@ class _ToAst(Transformer):
             code="bsdl-syntax")
         return 0
 
-    def port_range(self, meta, items):
+    def port_range(self, meta: Meta, items: list[Any]) -> PortRange:
         left, word, right = items
         direction = self._choose(word, ("TO", "DOWNTO"), "range direction")
         left_value, right_value = self._whole(left), self._whole(right)
@@ -261,14 +262,14 @@ class _ToAst(Transformer):
             right_value = left_value
         return PortRange(left_value, descending, right_value, meta.start_pos, meta.end_pos)
 
-    def name_list(self, meta, items):
+    def name_list(self, meta: Meta, items: list[Any]) -> tuple[Identifier, ...]:
         return tuple(_ident(t) for t in items)
 
-    def use_clause(self, meta, items):
+    def use_clause(self, meta: Meta, items: list[Any]) -> UseClause:
         return UseClause(tuple(_ident(t) for t in items if _is_token(t, "NAME")),
                          meta.start_pos, meta.end_pos)
 
-    def attribute_spec(self, meta, items):
+    def attribute_spec(self, meta: Meta, items: list[Any]) -> AttributeSpec:
         parts = [i for i in items if not _is_token(i, "ATTRIBUTE") and not _is_token(i, "OF")
                  and not _is_token(i, "IS")]
         name, targets, class_token, value = parts
@@ -277,24 +278,24 @@ class _ToAst(Transformer):
                              Identifier(entity_class, class_token.start_pos, class_token.end_pos),
                              value, meta.start_pos, meta.end_pos)
 
-    def target_list(self, meta, items):
+    def target_list(self, meta: Meta, items: list[Any]) -> tuple[Target, ...]:
         return tuple(items)
 
-    def target(self, meta, items):
+    def target(self, meta: Meta, items: list[Any]) -> Target:
         index = self._whole(items[1]) if len(items) > 1 else None
         return Target(_ident(items[0]), index, meta.start_pos, meta.end_pos)
 
-    def attribute_decl(self, meta, items):
+    def attribute_decl(self, meta: Meta, items: list[Any]) -> AttributeDecl:
         name, type_name = (t for t in items if _is_token(t, "NAME"))
         return AttributeDecl(_ident(name), _ident(type_name), meta.start_pos, meta.end_pos)
 
-    def constant_decl(self, meta, items):
+    def constant_decl(self, meta: Meta, items: list[Any]) -> ConstantDecl:
         name, type_name = (t for t in items if _is_token(t, "NAME"))
         values = [i for i in items if not isinstance(i, Token)]
         return ConstantDecl(_ident(name), _ident(type_name), values[0] if values else None,
                             meta.start_pos, meta.end_pos)
 
-    def concatenation(self, meta, items):
+    def concatenation(self, meta: Meta, items: list[Any]) -> StringValue:
         pieces = []
         for token in items:
             inner = str(token)[1:-1]
@@ -303,15 +304,15 @@ class _ToAst(Transformer):
                                       token.start_pos + 1, doubled))
         return StringValue.join(tuple(pieces), meta.start_pos, meta.end_pos)
 
-    def number(self, meta, items):
+    def number(self, meta: Meta, items: list[Any]) -> NumberValue:
         token = items[0]
         return NumberValue(str(token), float(token), token.start_pos, token.end_pos)
 
-    def name_value(self, meta, items):
+    def name_value(self, meta: Meta, items: list[Any]) -> NameValue:
         token = items[0]
         return NameValue(str(token).upper(), token.start_pos, token.end_pos)
 
-    def aggregate(self, meta, items):
+    def aggregate(self, meta: Meta, items: list[Any]) -> AggregateValue:
         return AggregateValue(tuple(items), meta.start_pos, meta.end_pos)
 
 
