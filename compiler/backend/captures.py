@@ -104,6 +104,7 @@ class ExpectationTable:
     targets: list[str]
     pin_position: list[int]
     pin_owner: list[int]  # index of the expectation
+    pins_one_each: bool  # pin_owner is 0, 1, 2 ...: exactly one pin per expectation, in order
     latch_position: list[int]
     latch_owner: list[int]
     dyn_position: list[int]
@@ -171,6 +172,7 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
         targets=targets,
         pin_position=pin_position,
         pin_owner=pin_owner,
+        pins_one_each=pin_owner == list(range(len(targets))),
         latch_position=latch_position,
         latch_owner=latch_owner,
         dyn_position=[d[0] for d in dyn],
@@ -204,8 +206,11 @@ def compare_expectations(table: ExpectationTable, values: str, chain_image: bita
     dynamic entries observe and that none of them can capture in this step.
     """
     ones, compared = values_as_bits(values)
-    owner_compared = bitarray(map(compared.__getitem__, table.pin_owner))
-    owner_one = bitarray(map(ones.__getitem__, table.pin_owner))
+    if table.pins_one_each:
+        owner_compared, owner_one = compared, ones
+    else:
+        owner_compared = bitarray(map(compared.__getitem__, table.pin_owner))
+        owner_one = bitarray(map(ones.__getitem__, table.pin_owner))
     mask[list(compress(table.pin_position, owner_compared))] = 1
     tdo[list(compress(table.pin_position, owner_one))] = 1
     latches = list(compress(table.latch_position,

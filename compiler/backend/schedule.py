@@ -21,6 +21,7 @@ from typing import Iterator, Mapping, Sequence
 from bitarray import bitarray, frozenbitarray
 
 from ..ir import COMPUTED, Program, RegisterRead, Step, Test, Wait
+from ..lang.bulk import collector_paused
 from ..models.board import Board, PinRef
 from ..models.device import BoundaryCell
 from .chainmap import build_chain_map, register_lengths
@@ -95,8 +96,10 @@ def schedule(program: Program, board: Board, computed: Computed | None = None) -
 
     `computed` maps (test, step, target) to "0", "1" or "X" for expectations whose value is
     ir.COMPUTED; such an expectation without an entry is not compared and a note says so.
+    The records are acyclic, so the cycle collector is paused while they are built.
     """
-    return _Scheduler(program, board, computed or {}).run()
+    with collector_paused():
+        return _Scheduler(program, board, computed or {}).run()
 
 
 def _concat(parts: Sequence[bitarray]) -> frozenbitarray:
