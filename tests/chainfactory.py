@@ -7,7 +7,7 @@
     ], idcode="0001" + "0" * 27 + "1")
     board = make_board([("U1", dev), ("U2", other)], {"NET0": ["U1.Y", "U2.A"]})
 
-IR helpers build programs the way the front end lowers them (`make_step`, `make_program` ...).
+IR builders make programs the way the front end lowers them (`make_step`, `make_program` ...).
 
 Opcodes are numbered in a fixed order unless given: EXTEST 0, SAMPLE 1, then PRELOAD, IDCODE,
 USERCODE, CLAMP, HIGHZ and user-register instructions in the order asked for; BYPASS is all
@@ -253,7 +253,7 @@ def make_board(
     )
 
 
-# ---------------------------------------------------------------------------------- IR helpers
+# ---------------------------------------------------------------------------------- IR builders
 def modes_for(board: Board, modes: Mapping[str, str] | None = None,
               default: str = "BYPASS") -> tuple[tuple[str, str], ...]:
     """Step/Wait modes for every chain device in chain order; unnamed devices get `default`."""
