@@ -8,8 +8,11 @@ port and net. The head states the TCK count against the lower bound for the scan
 
 from __future__ import annotations
 
+from itertools import compress
 from pathlib import Path
-from typing import Iterable, Sequence
+from typing import Sequence
+
+from bitarray import bitarray
 
 from ..cycle_stream import CycleStream
 from ..hexbits import bits_to_hex
@@ -56,6 +59,20 @@ class _ChainLabels:
     def __init__(self, devices: Sequence[DeviceMap]) -> None:
         self.devices = {device.ref: device for device in devices}
         self._labels: dict[tuple[str, str], list[str]] = {}
+        self._lines: dict[tuple[str, str, int, int], list[str]] = {}
+
+    def compared_lines(self, ref: str, register: str, offset: int, length: int) -> list[str]:
+        """For a segment, the two possible lines of each bit, interleaved: bit b expecting 0 at
+        2b, expecting 1 at 2b+1. Built once per segment place, since scans repeat their layout."""
+        key = (ref, register, offset, length)
+        lines = self._lines.get(key)
+        if lines is None:
+            lines = []
+            for bit, name in enumerate(self.labels(ref, register, length)[:length]):
+                head = f"      scan bit {offset + bit}: expect "
+                lines += (f"{head}0  {name}", f"{head}1  {name}")
+            self._lines[key] = lines
+        return lines
 
     def labels(self, ref: str, register: str, length: int) -> list[str]:
         key = (ref, register)
@@ -139,21 +156,27 @@ def _record_lines(index: int, record: ShiftRecord, start: int, end: int, shift_s
         lines.append(line)
         if record.kind == DR_SCAN and intent is not None:
             lines += _wrapped("image ", intent, "      ")
-    compared = list(_compared_bits(record, labels))
+    compared = _compared_bits(record, labels)
     if compared:
         lines.append(f"    compared bits ({len(compared)}):")
         lines += compared
     return lines
 
 
-def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> Iterable[str]:
-    tdo = record.tdo
+def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
+    """Every compared bit's line, picked from the segment's prepared lines by a selector
+    (compared and expecting 0 at 2b, compared and expecting 1 at 2b+1), not formatted per bit."""
+    tdo, mask = bitarray(record.tdo, endian="big"), bitarray(record.mask, endian="big")
+    lines: list[str] = []
     for segment in sorted(record.segments, key=lambda s: s.offset):
-        offset = segment.offset
-        window = record.mask[offset:offset + segment.length]
-        names = labels.labels(segment.device, segment.register, segment.length)
-        for bit in window.search(1):
-            yield f"      scan bit {offset + bit}: expect {tdo[offset + bit]}  {names[bit]}"
+        start, stop = segment.offset, segment.offset + segment.length
+        window, expected = mask[start:stop], tdo[start:stop]
+        selector = bitarray(2 * segment.length, endian="big")
+        selector[0::2] = window & ~expected
+        selector[1::2] = window & expected
+        lines.extend(compress(labels.compared_lines(segment.device, segment.register, start,
+                                                    segment.length), selector))
+    return lines
 
 
 def render_listing(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> str:
