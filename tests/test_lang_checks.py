@@ -398,3 +398,13 @@ def test_examples_check_clean():
         diagnostics = Diagnostics(strict=True)
         load_program(path, diagnostics)
         assert diagnostics.items == [], path
+
+
+def test_changing_a_drive_while_the_device_stays_in_clamp_warns():
+    # IEEE Std 1149.1 CLAMP (from memory): it selects the bypass register, so the boundary
+    # register's update stage, and with it the pins, keep the image loaded before CLAMP.
+    d = diagnose('test t "t" {\n    U1 CLAMP\n    step a {\n        drive N0 = 1\n    }\n'
+                 "    step b {\n        drive N0 = 1\n    }\n    step c {\n        drive N0 = 0\n"
+                 "    }\n    U1 EXTEST\n    step d {\n        drive N0 = 1\n    }\n}\n")
+    assert [x.severity for x in d] == ["warning"]
+    one(d, "warning", 10, 15, r"U1 stays in CLAMP: the new value of N0 does not reach the pin")

@@ -214,6 +214,8 @@ class _TestChecker:
         self.mode_keys: dict[tuple[tuple[str, str], ...], tuple[tuple[str, str], ...]] = {}
         self.unused_modes: list[ast.ModeSet] = []
         self.rows = 0  # rows of unnamed tables so far, numbered across the test
+        self.last_modes: dict[str, str] | None = None  # modes of the previous step
+        self.state: dict[str, str] = {}  # net or pin -> value driven so far in this test
 
     def modes_key(self, modes: dict[str, str]) -> tuple[tuple[str, str], ...]:
         key = tuple(modes.items())
@@ -221,6 +223,9 @@ class _TestChecker:
 
     def check(self, test: ast.Test) -> TestPlan:
         overrides: list[Override] = []
+        # Only tests that use CLAMP need the drive history that clamped_changes keeps.
+        self.clamps = "CLAMP" in self.modes.values() or any(
+            isinstance(i, ast.ModeSet) and i.instruction.upper() == "CLAMP" for i in test.items)
         for item in test.items:
             if isinstance(item, ast.ModeSet):
                 self.mode_set(item)
@@ -347,9 +352,40 @@ class _TestChecker:
             self.check_drivable(signal, bits, key, modes)
         for signal, bits in expects:
             self.check_observed(signal, bits, modes)
+        self.clamped_changes(drives, key, modes)
         self.items.append(StepPlan(name, key, flat_drives, flat_expects, tuple(writes),
                                    tuple(reads), wait_clocks, tuple(overrides), span))
         self.unused_modes.clear()
+
+    def clamped_changes(self, drives: Sequence[tuple[ast.Signal, Sequence[BitValue]]],
+                        key: tuple[tuple[str, str], ...], modes: dict[str, str],
+                        where: SourceSpan | None = None) -> None:
+        """Warn when a drive changes on a device that stays in CLAMP (IEEE 1149.1 CLAMP).
+
+        CLAMP selects the bypass register, so no scan updates the boundary register while the
+        device stays in it: its pins keep the image they had when it entered CLAMP.
+        """
+        if not self.clamps:
+            return
+        previous = self.last_modes
+        self.last_modes = modes
+        warned: set[str] = set()
+        for signal, bits in drives:
+            for bit, value, _ in bits:
+                changed = self.state.get(bit.key) != value
+                self.state[bit.key] = value
+                if not changed or previous is None or "CLAMP" not in modes.values():
+                    continue
+                driver = self.scope.choose_driver(bit, key, modes)
+                ref = driver.split(".", 1)[0] if driver else None
+                if ref is None or modes[ref] != "CLAMP" or previous.get(ref) != "CLAMP" or \
+                        ref in warned:
+                    continue
+                warned.add(ref)
+                self.diag.warning(f"{ref} stays in CLAMP: the new value of {bit.target} does not "
+                                  f"reach the pin", signal.span or where,
+                                  hint=f"CLAMP selects the bypass register, so the pins keep the "
+                                       f"image {ref} entered CLAMP with; leave CLAMP to change it")
 
     def assign(self, target: ast.Signal, value: ast.Value, role: str,
                into: list[tuple[ast.Signal, list[BitValue]]]) -> None:
@@ -582,6 +618,7 @@ class _TestChecker:
                 flat_drives = self.no_conflicts(drives, "drives", name, row.span)
             if overlapping_expects:
                 flat_expects = self.no_conflicts(expects, "expects", name, row.span)
+            self.clamped_changes(drives, key, modes, row.span)
             self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span))
         if table.rows:
             self.unused_modes.clear()
