@@ -186,7 +186,7 @@ def test_preload_check_on_records_from_elsewhere() -> None:
     # The compiler always preloads; a hand-edited record sequence without the preload DR scan
     # must be refused (IEEE 1149.1: EXTEST only after the boundary register holds defined values).
     diagnostics = Diagnostics()
-    program, board = load_program(DEMO / "interconnect.loom", diagnostics)
+    program, board = load_program(DEMO / "valve_nets.loom", diagnostics)
     scan = schedule(program, board)
     assert check_records(scan).findings == []
     kept = tuple(r for r in scan.records if not (r.kind == DR_SCAN and r.purpose == "preload"))
