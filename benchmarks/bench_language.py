@@ -15,7 +15,8 @@ import time
 from pathlib import Path
 
 from scanloom.diagnostics import Diagnostics
-from scanloom.lang.checks import check_program, read_header
+from scanloom.lang.checks import check_program
+from scanloom.lang.header import read_header
 from scanloom.lang.includes import expand_includes
 from scanloom.lang.lower import lower_program
 from scanloom.lang.parser import parse_source

@@ -10,7 +10,7 @@ import os
 from pathlib import Path
 
 import pytest
-from lang_boards import U1_IDCODE, U2_IDCODE, run, small_board
+from lang_boards import U1_IDCODE, U2_IDCODE, run
 
 from scanloom.diagnostics import Diagnostics
 from scanloom.ir import COMPUTED, Drive, Expect, Override, RegisterRead, RegisterWrite, Step, Wait
@@ -226,7 +226,3 @@ def test_register_example_reads_idcodes_with_x_bits_and_a_user_register():
     assert reads[("U1", "CFGREG")] in ("10100101", "00111100")
     writes = [w for t in program.tests for s in t.steps for w in s.writes]
     assert writes[0].register == "CFGREG" and writes[0].bits == "10100101"
-
-
-def test_small_board_helper_is_deterministic():
-    assert [e.ref for e in small_board().chain] == ["U1", "U2", "U3"]

@@ -12,19 +12,20 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
-from fractions import Fraction
 from itertools import chain
-from typing import Iterable, Sequence
+from typing import Sequence
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
 from ..ir import Override
 from ..models.board import Board
+from ..models.device import DeviceModel
 from ..safety_checks import CHECKS as SAFETY_CHECKS
 from . import ast
 from .bulk import collector_paused
 from .includes import ProgramFiles
 from .resolve import BitRef, Scope, observes_pins
-from .values import DRIVE, EXPECT, READ, WRITE, frequency_in_hz, time_in_seconds, value_bits
+from .header import Header, read_header
+from .values import DRIVE, EXPECT, READ, WRITE, time_in_seconds, value_bits
 
 __all__ = [
     "OVERRIDABLE_CHECKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
@@ -34,25 +35,8 @@ __all__ = [
 # Safety checks a test or step may knowingly override with `allow NAME "reason"`.
 OVERRIDABLE_CHECKS = tuple(SAFETY_CHECKS)  # the pre-hardware checks a program may allow
 
-DEFAULT_FIGHT_LIMIT_S = 1e-3
-END_STATES = {"reset": "TEST_LOGIC_RESET", "idle": "RUN_TEST_IDLE"}
-
 # One resolved bit of a drive or an expectation: (bit, value character, where it was written).
 BitValue = tuple[BitRef, str, "SourceSpan | None"]
-
-
-@dataclass(frozen=True, slots=True)
-class Header:
-    """The program-wide settings, from the main program's header."""
-
-    board_path: str | None
-    board_span: SourceSpan | None
-    tck_hz: Fraction | None
-    default_instruction: str
-    default_span: SourceSpan | None
-    end_state: str
-    fight_limit_s: float
-    spans: dict[str, SourceSpan]  # header statement ("board", "tck", ...) -> where written
 
 
 @dataclass(frozen=True, slots=True)
@@ -107,50 +91,6 @@ def signal_text(signal: ast.Signal) -> str:
     if signal.single:
         return f"{signal.name}[{signal.high}]"
     return f"{signal.name}[{signal.high}:{signal.low}]"
-
-
-# ---- header -------------------------------------------------------------------------------
-
-def read_header(items: Iterable[ast.TopItem], diagnostics: Diagnostics) -> Header:
-    """The settings of the main program; each may be given once."""
-    seen: dict[type, ast.TopItem] = {}
-    board_path = board_span = None
-    tck: Fraction | None = None
-    default, default_span = "BYPASS", None
-    end_state = "TEST_LOGIC_RESET"
-    fight = DEFAULT_FIGHT_LIMIT_S
-    spans: dict[str, SourceSpan] = {}
-    for item in items:
-        if isinstance(item, (ast.GroupDecl, ast.Test, ast.IncludeDecl)):
-            continue
-        if type(item) in seen:
-            diagnostics.error(f"the program sets {_setting(item)} twice", item.span,
-                              hint=f"it is first set at {seen[type(item)].span}")
-            continue
-        seen[type(item)] = item
-        if item.span is not None:
-            spans[_setting(item)] = item.span
-        if isinstance(item, ast.BoardDecl):
-            board_path, board_span = item.path, item.span
-        elif isinstance(item, ast.TckDecl):
-            tck = frequency_in_hz(item.frequency, diagnostics)
-        elif isinstance(item, ast.DefaultModeDecl):
-            default, default_span = item.instruction.upper(), item.instruction_span
-        elif isinstance(item, ast.FinishDecl):
-            end_state = END_STATES[item.state]
-        elif isinstance(item, ast.FightLimitDecl):
-            duration = time_in_seconds(item.duration, diagnostics)
-            if duration is not None:
-                if duration[1] <= 0:
-                    diagnostics.error("the fight limit must be above zero", item.duration.span)
-                else:
-                    fight = float(duration[1])
-    return Header(board_path, board_span, tck, default, default_span, end_state, fight, spans)
-
-
-def _setting(item: ast.TopItem) -> str:
-    return {ast.BoardDecl: "board", ast.TckDecl: "tck", ast.DefaultModeDecl: "default mode",
-            ast.FinishDecl: "finish", ast.FightLimitDecl: "fight limit"}[type(item)]
 
 
 # ---- the program --------------------------------------------------------------------------
@@ -557,7 +497,7 @@ class _TestChecker:
         return candidates[0]
 
     @staticmethod
-    def selecting(device, register: str) -> tuple[str, ...]:
+    def selecting(device: DeviceModel, register: str) -> tuple[str, ...]:
         return tuple(name for name in device.public_instructions
                      if device.selects.get(name) == register)
 

@@ -14,7 +14,8 @@ from pathlib import Path
 from ..diagnostics import Diagnostics, ScanloomError, read_source
 from ..ir import Program, dump_ir
 from ..models.board import Board
-from .checks import check_program, read_header
+from .checks import check_program
+from .header import read_header
 from .includes import expand_includes
 from .lower import lower_program
 from .parser import parse_source
