@@ -249,3 +249,19 @@ def test_parse_source_reports_into_diagnostics_and_returns_none():
     assert len(diagnostics.errors) == 1
     assert diagnostics.errors[0].span.file == "x.loom"
     assert "x.loom" in diagnostics.sources
+
+
+def test_several_independent_syntax_errors_in_one_run():
+    diagnostics = Diagnostics()
+    text = ('test t "t" {\n    step s {\n        drive A = 0 1\n        expect B = = 1\n'
+            "        wait\n    }\n}\n")
+    assert parse_source(text, "t.loom", diagnostics) is None
+    assert [(d.span.line, d.span.column) for d in diagnostics.errors] == [(3, 21), (4, 20), (5, 13)]
+
+
+def test_recovery_stops_where_setting_a_line_aside_would_mislead():
+    diagnostics = Diagnostics()
+    # The bad line opens a block: without it the closing braces would not match.
+    text = 'test t "t" {\n    step {\n        drive A = 0 1\n    }\n}\n'
+    assert parse_source(text, "t.loom", diagnostics) is None
+    assert len(diagnostics.errors) == 1

@@ -74,30 +74,67 @@ def parse_file(path: str | Path, diagnostics: Diagnostics, name: str | None = No
 
 
 def parse_source(text: str, file: str, diagnostics: Diagnostics) -> ast.Program | None:
-    """Parse `text`; on a syntax error report it into `diagnostics` and return None."""
+    """Parse `text`; on syntax errors report them into `diagnostics` and return None.
+
+    After a syntax error the offending line is set aside and the rest parsed again, so that
+    one run reports several independent mistakes. Recovery stops where setting a line aside
+    could itself cause errors (a line with a brace, a list continued over lines, the end of
+    the file) and after MAX_SYNTAX_ERRORS.
+    """
     diagnostics.add_source(file, text)
+    program, problem = _parse_once(text, file)
+    if problem is None:
+        assert program is not None
+        return ast.Program(file, program.items, _comments(text), program.span)
+    diagnostics.report(problem)
+    if len(text) > _RECOVERY_LIMIT:
+        return None
+    lines = text.split("\n")
+    for _ in range(MAX_SYNTAX_ERRORS - 1):
+        index = problem.span.line - 1 if problem.span else len(lines)
+        if problem.message.endswith("ends too early") or not _can_set_aside(lines, index):
+            break
+        lines[index] = ""
+        _, following = _parse_once("\n".join(lines), file)
+        if following is None or following.span is None or problem.span is None or \
+                following.span.line <= problem.span.line:
+            break
+        diagnostics.report(following)
+        problem = following
+    return None
+
+
+MAX_SYNTAX_ERRORS = 10
+_RECOVERY_LIMIT = 200_000  # characters: larger files report their first syntax error only
+
+
+def _can_set_aside(lines: list[str], index: int) -> bool:
+    if index >= len(lines):
+        return False
+    line = lines[index].split("#", 1)[0]
+    before = lines[index - 1].split("#", 1)[0].rstrip() if index > 0 else ""
+    return not ("{" in line or "}" in line or line.rstrip().endswith((",", "[")) or
+                before.endswith((",", "[")) or '"' in line)
+
+
+def _parse_once(text: str, file: str) -> tuple[ast.Program | None, Diagnostic | None]:
     # Every statement ends at a line end; a final line without one still ends there.
     padded = text if text.endswith("\n") else text + "\n"
     try:
         with collector_paused():
-            program: ast.Program = grammar_parser(file).parse(padded)
+            return grammar_parser(file).parse(padded), None
     except VisitError as wrapped:  # lark wraps what the transformer raises
         error = wrapped.orig_exc
         if isinstance(error, _SyntaxProblem):
-            diagnostics.report(error.diagnostic)
-            return None
+            return None, error.diagnostic
         raise error
     except _SyntaxProblem as problem:
-        diagnostics.report(problem.diagnostic)
-        return None
+        return None, problem.diagnostic
     except UnexpectedInput as error:
-        diagnostics.report(_syntax_diagnostic(error, text, file))
-        return None
+        return None, _syntax_diagnostic(error, text, file)
     except LarkError as error:  # any other lark complaint is still a syntax error of the input
-        diagnostics.error(f"cannot parse the program: {error}", SourceSpan(file, 1, 1, 1, 2))
-        return None
-    comments = _comments(text)
-    return ast.Program(file, program.items, comments, program.span)
+        return None, Diagnostic("error", f"cannot parse the program: {error}",
+                                SourceSpan(file, 1, 1, 1, 2))
 
 
 # ---- syntax errors in words ---------------------------------------------------------------
