@@ -10,6 +10,8 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from scanloom.diagnostics import Diagnostics, read_source
 from scanloom.models.bsdl import parse_bsdl, read_bsdl
@@ -316,3 +318,57 @@ def test_joined_strings_map_back_to_the_file_character_by_character() -> None:
     assert value.text == 'ab"cx' 'de""f'
     for index, char in enumerate(value.text):
         assert text[value.file_offset(index)] == char
+
+
+# -- the boundary register's two readers ---------------------------------------------------
+
+def _register_text(path: Path) -> str:
+    from scanloom.models.bsdl_ast import SourceText, StringValue
+    from scanloom.models.bsdl_syntax import parse_syntax
+
+    tree = parse_syntax(SourceText(path.name, read_source(path)), Diagnostics())
+    assert tree is not None
+    spec = next(a for a in tree.entity.attributes if a.name.text == "BOUNDARY_REGISTER")
+    assert isinstance(spec.value, StringValue)
+    return spec.value.text
+
+
+@pytest.mark.parametrize("path", VALID_FIXTURES + DEMO_FILES, ids=lambda p: p.name)
+def test_plain_entry_path_equals_the_token_reader(path: Path) -> None:
+    from scanloom.models.bsdl_boundary import parse_boundary_register
+
+    text = _register_text(path)
+    assert parse_boundary_register(text) == parse_boundary_register(text, plain_path=False)
+
+
+_port = st.one_of(st.just("*"), st.from_regex(r"[A-Za-z][A-Za-z0-9_]{0,5}", fullmatch=True),
+                  st.from_regex(r"[A-Za-z][A-Za-z0-9_]{0,4} ?\( ?[0-9]{1,3} ?\)", fullmatch=True))
+_bad = st.sampled_from(["oops", "2", "BC_1", "Z", "input"])
+_function = st.one_of(st.sampled_from(["input", "OUTPUT3", "bidir", "Control", "controlr",
+                                       "internal", "clock", "observe_only", "Output2"]), _bad)
+_safe = st.one_of(st.sampled_from(["0", "1", "X", "x"]), _bad)
+_result = st.one_of(st.sampled_from(["Z", "weak1", "WEAK0", "keeper", "PULL0", "pull1"]), _bad)
+_entry_text = st.builds(
+    lambda n, cell, port, fn, safe, tail, pad: (
+        f"{pad}{n}{pad}({pad}{cell},{pad}{port},{fn},{pad}{safe}{tail})"),
+    st.integers(0, 999), st.sampled_from(["BC_1", "bc_2", "BC_7", "AC_1", "RW_X", "9X"]), _port,
+    _function, _safe,
+    st.one_of(st.just(""), st.builds(lambda c, d, r: f", {c}, {d}, {r}", st.integers(0, 99),
+                                      st.sampled_from(["0", "1", "2"]), _result),
+              st.builds(lambda s: f", {s}", st.sampled_from(["PULL1", "openx", "oops"]))),
+    st.sampled_from(["", " ", "  ", "\t"]))
+
+
+@given(st.lists(_entry_text, min_size=1, max_size=6), st.sampled_from([", ", ",", " , "]))
+def test_both_boundary_readers_agree_on_any_entries(entries: list[str], separator: str) -> None:
+    from scanloom.models.bsdl_boundary import parse_boundary_register
+    from scanloom.models.bsdl_scanner import AttributeSyntaxError
+
+    text = separator.join(entries)
+    outcomes = []
+    for plain in (True, False):
+        try:
+            outcomes.append(parse_boundary_register(text, plain_path=plain))
+        except AttributeSyntaxError as error:
+            outcomes.append((error.message, error.start, error.end))
+    assert outcomes[0] == outcomes[1]

@@ -10,6 +10,7 @@ The boundary register has its own module (bsdl_boundary), being the large one.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import NamedTuple
 
 from .bsdl_scanner import END, REAL, WORD, AttrCursor, AttributeSyntaxError, AttrToken
 
@@ -34,8 +35,9 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True, slots=True)
-class Located:
+# Located, PortRef and the boundary register's CellEntry are named tuples rather than frozen
+# dataclasses: parser-internal records made by the thousand, where creation cost shows.
+class Located(NamedTuple):
     """A word of an attribute string (upper case) and its index range in the joined text."""
 
     text: str
@@ -43,8 +45,7 @@ class Located:
     end: int
 
 
-@dataclass(frozen=True, slots=True)
-class PortRef:
+class PortRef(NamedTuple):
     """A port or port bit named in an attribute string: `CLK`, `D(3)`."""
 
     name: str

@@ -9,7 +9,8 @@ that build intermediate strings.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import re
+from typing import NamedTuple
 
 from .bsdl_attributes import Located, PortRef, read_port_ref
 from .bsdl_scanner import MARK, WORD, AttrCursor, describe
@@ -28,8 +29,7 @@ INPUT_SPECS = ("EXTERN0", "EXTERN1", "PULL0", "PULL1", "OPEN0", "OPEN1", "KEEPER
                "EXPECT1", "EXPECT0")
 
 
-@dataclass(frozen=True, slots=True)
-class CellEntry:
+class CellEntry(NamedTuple):
     """One entry as written, with the index range of each field for precise errors."""
 
     number: Located
@@ -95,14 +95,81 @@ def _entry(cursor: AttrCursor) -> CellEntry:
         number_token.start, close.end)
 
 
-def parse_boundary_register(text: str) -> list[CellEntry]:
-    """Every entry in the order written; numbering and order are checked in bsdl_checks."""
-    cursor = AttrCursor(text)
+# One well-formed 4- or 7-field entry and the separator after it, as most entries are
+# written. Anything else (the 5-field form, a fault) is read token by token by `_entry`.
+_PLAIN_ENTRY = re.compile(
+    r"\s*(?P<number>[0-9]{1,9})\s*\(\s*(?P<cell>[A-Za-z][A-Za-z0-9_]*)\s*,\s*"
+    r"(?:(?P<star>\*)|(?P<port>(?P<name>[A-Za-z][A-Za-z0-9_]*)"
+    r"(?:\s*\(\s*(?P<index>[0-9]{1,9})\s*\))?))\s*,"
+    r"\s*(?P<function>[A-Za-z][A-Za-z0-9_]*)\s*,\s*(?P<safe>[A-Za-z0-9_]+)\s*"
+    r"(?:,\s*(?P<control>[0-9]{1,9})\s*,\s*(?P<disable>[01])\s*,"
+    r"\s*(?P<result>[A-Za-z][A-Za-z0-9_]*)\s*)?(?P<close>\))\s*(?P<separator>,|\Z)")
+_FUNCTIONS = frozenset(CELL_FUNCTIONS)
+_RESULTS = frozenset(DISABLE_RESULTS)
+
+
+def _plain_entry(match: re.Match[str]) -> CellEntry | None:
+    """The entry `_PLAIN_ENTRY` matched, or None when a field needs `_entry`'s error."""
+    function = match["function"].upper()
+    safe = match["safe"].upper()
+    result = match["result"]
+    if function not in _FUNCTIONS or safe not in SAFE_VALUES or (
+            result is not None and result.upper() not in _RESULTS):
+        return None
+    start, end = match.start, match.end
+    port: PortRef | None = None
+    if match["star"] is not None:
+        port_at = (start("star"), end("star"))
+    else:
+        index = match["index"]
+        port_at = (start("port"), end("port"))
+        port = PortRef(match["name"].upper(), None if index is None else int(index), *port_at)
+    control = disable = disable_result = None
+    if match["control"] is not None:
+        control = Located(match["control"], start("control"), end("control"))
+        disable = Located(match["disable"], start("disable"), end("disable"))
+        disable_result = Located(result.upper(), start("result"), end("result"))
+    return CellEntry(
+        Located(match["number"], start("number"), end("number")),
+        Located(match["cell"].upper(), start("cell"), end("cell")),
+        port, port_at, Located(function, start("function"), end("function")),
+        Located(safe, start("safe"), end("safe")), control, disable, disable_result, None,
+        start("number"), end("close"))
+
+
+def parse_boundary_register(text: str, plain_path: bool = True) -> list[CellEntry]:
+    """Every entry in the order written; numbering and order are checked in bsdl_checks.
+
+    Entries written plainly are matched whole with one regular expression (large devices
+    have thousands); the others, and every fault, go through the token reader, which gives
+    the precise error. `plain_path=False` reads everything token by token (for tests).
+    """
     entries: list[CellEntry] = []
-    if cursor.at_end():
-        return entries
+    position = 0
+    length = len(text)
+    match_plain = _PLAIN_ENTRY.match
     while True:
+        if plain_path:
+            match = match_plain(text, position)
+            if match is not None:
+                entry = _plain_entry(match)
+                if entry is not None:
+                    entries.append(entry)
+                    position = match.end()
+                    if match["separator"] == "":
+                        return entries
+                    continue
+        cursor = AttrCursor(text, position)
+        if cursor.at_end():
+            if entries:
+                cursor.fail(cursor.peek(), "expected another boundary cell after `,`",
+                            "a cell entry such as 0 (BC_1, A, input, X)")
+            return entries
         entries.append(_entry(cursor))
         if cursor.at_end():
             return entries
         cursor.expect_mark(",", "between boundary cells")
+        position = cursor.position()
+        if position >= length:
+            cursor.fail(cursor.peek(), "expected another boundary cell after `,`",
+                        "a cell entry such as 0 (BC_1, A, input, X)")

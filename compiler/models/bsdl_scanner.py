@@ -8,11 +8,11 @@ to the file through `StringValue.file_offset`, so an error points at the offendi
 from __future__ import annotations
 
 import re
-from typing import NamedTuple, NoReturn, Sequence
+from typing import Iterator, NamedTuple, NoReturn, Sequence
 
 from ..diagnostics import nearest
 
-__all__ = ["AttrToken", "AttributeSyntaxError", "AttrCursor", "tokenize", "WORD", "REAL",
+__all__ = ["AttrToken", "AttributeSyntaxError", "AttrCursor", "describe", "WORD", "REAL",
            "MARK", "OTHER", "END"]
 
 WORD = "word"  # letters, digits and underscores: names, integers, bit patterns, pin names
@@ -47,18 +47,6 @@ class AttributeSyntaxError(Exception):
         self.suggestions = tuple(suggestions)
 
 
-def tokenize(text: str) -> list[AttrToken]:
-    tokens: list[AttrToken] = []
-    append = tokens.append
-    for match in _TOKEN.finditer(text):
-        kind = match.lastgroup
-        if kind is None:
-            continue
-        append(AttrToken(_KIND[kind], match.group(kind), match.start(kind), match.end(kind)))
-    append(AttrToken(END, "", len(text), len(text)))
-    return tokens
-
-
 def describe(token: AttrToken) -> str:
     if token.kind == END:
         return "the end of the string"
@@ -66,47 +54,74 @@ def describe(token: AttrToken) -> str:
 
 
 class AttrCursor:
-    """Reads tokens one by one; every `expect_*` raises AttributeSyntaxError at the token."""
+    """Reads tokens one by one; every `expect_*` raises AttributeSyntaxError at the token.
 
-    __slots__ = ("tokens", "index")
+    Tokens are made on demand from `start`, so a reader can take over part of a long string
+    (one boundary cell) and hand the rest back through `position()`.
+    """
 
-    def __init__(self, text: str) -> None:
-        self.tokens = tokenize(text)
+    __slots__ = ("tokens", "index", "_matches", "_length")
+
+    def __init__(self, text: str, start: int = 0) -> None:
+        self.tokens: list[AttrToken] = []
         self.index = 0
+        self._matches: Iterator[re.Match[str]] | None = _TOKEN.finditer(text, start)
+        self._length = len(text)
+
+    def _fill(self, position: int) -> None:
+        while len(self.tokens) <= position and self._matches is not None:
+            match = next(self._matches, None)
+            if match is None:
+                self.tokens.append(AttrToken(END, "", self._length, self._length))
+                self._matches = None
+                return
+            kind = match.lastgroup
+            if kind is not None:
+                self.tokens.append(AttrToken(_KIND[kind], match.group(kind), match.start(kind),
+                                             match.end(kind)))
+
+    def _current(self) -> AttrToken:
+        if self.index >= len(self.tokens):
+            self._fill(self.index)
+        return self.tokens[min(self.index, len(self.tokens) - 1)]
+
+    def position(self) -> int:
+        """Where the next token starts (the end of the text once everything is read)."""
+        return self._current().start
 
     def peek(self, ahead: int = 0) -> AttrToken:
-        position = min(self.index + ahead, len(self.tokens) - 1)
-        return self.tokens[position]
+        self._fill(self.index + ahead)
+        return self.tokens[min(self.index + ahead, len(self.tokens) - 1)]
 
     def advance(self) -> AttrToken:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind != END:
             self.index += 1
         return token
 
     def at_end(self) -> bool:
-        return self.tokens[self.index].kind == END
+        return self._current().kind == END
 
     def at_mark(self, mark: str) -> bool:
-        token = self.tokens[self.index]
+        token = self._current()
         return token.kind == MARK and token.text == mark
 
     def accept_mark(self, mark: str) -> AttrToken | None:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind == MARK and token.text == mark:
             self.index += 1
             return token
         return None
 
     def expect_mark(self, mark: str, context: str) -> AttrToken:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind == MARK and token.text == mark:
             self.index += 1
             return token
         self.fail(token, f"expected `{mark}` {context}, found {describe(token)}", f"`{mark}`")
 
     def expect_word(self, what: str, context: str = "") -> AttrToken:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind == WORD:
             self.index += 1
             return token
@@ -114,7 +129,7 @@ class AttrCursor:
         self.fail(token, f"expected {what}{where}, found {describe(token)}", what)
 
     def expect_number(self, what: str) -> tuple[AttrToken, float]:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind in (WORD, REAL):
             try:
                 value = float(token.text)
@@ -126,7 +141,7 @@ class AttrCursor:
         self.fail(token, f"expected {what}, found {describe(token)}", "a number such as 1.0e-3")
 
     def expect_integer(self, what: str) -> tuple[AttrToken, int]:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind == WORD and token.text.isdigit() and len(token.text) <= 9:
             self.index += 1
             return token, int(token.text)
@@ -135,7 +150,7 @@ class AttrCursor:
 
     def expect_choice(self, choices: Sequence[str], what: str) -> tuple[AttrToken, str]:
         """A word from `choices` (case-insensitive); the error suggests the nearest choice."""
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind == WORD:
             word = token.text.upper()
             if word in choices:
@@ -145,7 +160,7 @@ class AttrCursor:
                   "one of " + ", ".join(choices), nearest(token.text, choices))
 
     def expect_end(self, context: str) -> None:
-        token = self.tokens[self.index]
+        token = self._current()
         if token.kind != END:
             self.fail(token, f"unexpected {describe(token)} {context}", "the end of the string")
 

@@ -39,10 +39,14 @@ _UNIT_STARTS = ("entity", "package", "use", "library")
 _CODE_SCAN = re.compile(r'--[^\n]*|"(?:[^"\n]|"")*"|\b(entity|end)\b', re.IGNORECASE)
 _WORD_OR_MARK = re.compile(r'--[^\n]*|"(?:[^"\n]|"")*"|[A-Za-z][A-Za-z0-9_]*|\S')
 
+# The pieces of a STRINGS token: each literal's content, or a comment between literals.
+_AFTER_AMPERSAND = re.compile(r"(?:[ \t\f\r\n]|--[^\n]*)*")
+_PIECE = re.compile(r'--[^\n]*|"((?:[^"\n\r]|"")*)"')
+
 _TERMINAL_WORDS = {
     "NAME": "a name",
     "NUMBER": "a number",
-    "STRING": "a string",
+    "STRINGS": "a string",
     "$END": "the end of the file",
 }
 
@@ -296,12 +300,15 @@ class _ToAst(Transformer):
                             meta.start_pos, meta.end_pos)
 
     def concatenation(self, meta: Meta, items: list[Any]) -> StringValue:
+        token = items[0]
         pieces = []
-        for token in items:
-            inner = str(token)[1:-1]
+        for match in _PIECE.finditer(str(token)):
+            inner = match.group(1)
+            if inner is None:
+                continue  # a comment between two pieces
             doubled = '""' in inner
             pieces.append(StringPiece(inner.replace('""', '"') if doubled else inner,
-                                      token.start_pos + 1, doubled))
+                                      token.start_pos + match.start(1), doubled))
         return StringValue.join(tuple(pieces), meta.start_pos, meta.end_pos)
 
     def number(self, meta: Meta, items: list[Any]) -> NumberValue:
@@ -340,6 +347,15 @@ def _report_syntax_error(error: UnexpectedInput, parser: Lark, source: SourceTex
     if isinstance(error, UnexpectedCharacters):
         offset = error.pos_in_stream
         char = source.text[offset] if offset < len(source.text) else ""
+        if char == "&":
+            # `&` stops a concatenation when no complete string follows it.
+            following = _AFTER_AMPERSAND.match(source.text, offset + 1)
+            offset = following.end() if following else offset
+            char = source.text[offset:offset + 1]
+            if char != '"':
+                diagnostics.error("`&` must join two strings", source.span(offset, offset + 1),
+                                  expected="a string after `&`", code="bsdl-syntax")
+                return
         if char == '"':
             end = source.text.find("\n", offset)
             end = len(source.text) if end < 0 else end
