@@ -109,6 +109,7 @@ def _check_program(files: ProgramFiles, header: Header, board: Board,
     default = _check_default(header, scope, diagnostics)
     tests: list[TestPlan] = []
     names: dict[str, ast.Test] = {}
+    values: dict[tuple[ast.Value, int, str], str] = {}  # successful value fits, shared by tests
     for item in files.items:
         if not isinstance(item, ast.Test):
             continue
@@ -116,7 +117,7 @@ def _check_program(files: ProgramFiles, header: Header, board: Board,
             diagnostics.error(f"test {item.name} is declared twice", item.name_span,
                               hint=f"the first is at {names[item.name].name_span}")
         names.setdefault(item.name, item)
-        tests.append(_TestChecker(scope, header, default, diagnostics).check(item))
+        tests.append(_TestChecker(scope, header, default, diagnostics, values).check(item))
     return ProgramPlan(header, tuple(tests))
 
 
@@ -144,7 +145,8 @@ def _check_default(header: Header, scope: Scope, diagnostics: Diagnostics) -> st
 class _TestChecker:
     """Walks one test with the modes in force; collects the plan of its steps."""
 
-    def __init__(self, scope: Scope, header: Header, default: str, diagnostics: Diagnostics):
+    def __init__(self, scope: Scope, header: Header, default: str, diagnostics: Diagnostics,
+                 values: dict[tuple[ast.Value, int, str], str]):
         self.scope = scope
         self.header = header
         self.diag = diagnostics
@@ -154,6 +156,7 @@ class _TestChecker:
         self.mode_keys: dict[tuple[tuple[str, str], ...], tuple[tuple[str, str], ...]] = {}
         self.unused_modes: list[ast.ModeSet] = []
         self.rows = 0  # rows of unnamed tables so far, numbered across the test
+        self.values: dict[tuple[ast.Value, int, str], str] = values
         self.last_modes: dict[str, str] | None = None  # modes of the previous step
         self.state: dict[str, str] = {}  # net or pin -> value driven so far in this test
 
@@ -291,7 +294,7 @@ class _TestChecker:
         for signal, bits in drives:
             self.check_drivable(signal, bits, key, modes)
         for signal, bits in expects:
-            self.check_observed(signal, bits, modes)
+            self.check_observed(signal, bits, modes, key)
         self.clamped_changes(drives, key, modes)
         self.items.append(StepPlan(name, key, flat_drives, flat_expects, tuple(writes),
                                    tuple(reads), wait_clocks, tuple(overrides), span))
@@ -332,9 +335,13 @@ class _TestChecker:
         bits = self.scope.signal(target, self.diag)
         if bits is None:
             return
-        values = value_bits(value, len(bits), role, signal_text(target), self.diag)
+        memo_key = (value, len(bits), role)
+        values = self.values.get(memo_key)
         if values is None:
-            return
+            values = value_bits(value, len(bits), role, signal_text(target), self.diag)
+            if values is None:
+                return
+            self.values[memo_key] = values
         span = value.span if value.span is not None else target.span
         into.append((target, [(bit, char, span) for bit, char in zip(bits, values)]))
 
@@ -386,11 +393,12 @@ class _TestChecker:
         where = ", ".join(f"{ref} (in {modes[ref]})" for ref in capable)
         return f"{where} can drive it in EXTEST or CLAMP"
 
-    def check_observed(self, signal: ast.Signal, bits: list[BitValue], modes: dict[str, str]) -> None:
+    def check_observed(self, signal: ast.Signal, bits: Sequence[BitValue], modes: dict[str, str],
+                       key: tuple[tuple[str, str], ...]) -> None:
         failing: list[BitRef] = []
         bypassed: list[BitRef] = []
         for bit, value, _ in bits:
-            if value == "X" or self.scope.observers(bit, modes):
+            if value == "X" or self.scope.observers(bit, modes, key):
                 continue
             if bit.is_pin and modes[bit.target.split(".", 1)[0]] == "BYPASS" and \
                     self.scope.could_observe(bit):
@@ -530,7 +538,7 @@ class _TestChecker:
                 self.check_drivable(signal, [(b, "0", None) for b in bits], key, modes)
         for signal, bits in zip(table.expect_columns, expect_cols):
             if bits is not None:
-                self.check_observed(signal, [(b, "0", None) for b in bits], modes)
+                self.check_observed(signal, [(b, "0", None) for b in bits], modes, key)
         if any(c is None for c in drive_cols) or any(c is None for c in expect_cols):
             return
         overlapping_drives = _overlap(drive_cols)

@@ -71,6 +71,8 @@ class Scope:
         self._observed: dict[tuple[str, str], frozenset[str]] = {}
         self._net_scan_pins: dict[str, tuple[PinRef, ...]] = {}
         self._driver_choice: dict[tuple[tuple[tuple[str, str], ...], str], str | None] = {}
+        self._observer_choice: dict[tuple[tuple[tuple[str, str], ...], str], tuple[str, ...]] = {}
+        self._signals: dict[ast.Signal, tuple[BitRef, ...]] = {}
 
     # ---- groups -----------------------------------------------------------------------------
     def declare_groups(self, declarations: Iterable[ast.GroupDecl], diagnostics: Diagnostics) -> None:
@@ -129,7 +131,13 @@ class Scope:
     # ---- signals ----------------------------------------------------------------------------
     def signal(self, signal: ast.Signal, diagnostics: Diagnostics) -> tuple[BitRef, ...] | None:
         """The bits of a signal, most significant first; None (reported) when it is unknown."""
-        return self._signal(signal, diagnostics, None)
+        known = self._signals.get(signal)
+        if known is not None:
+            return known
+        bits = self._signal(signal, diagnostics, None)
+        if bits is not None:
+            self._signals[signal] = bits
+        return bits
 
     def _signal(self, signal: ast.Signal, diagnostics: Diagnostics, group_resolver) -> tuple[BitRef, ...] | None:
         if isinstance(signal, ast.PinSignal):
@@ -356,8 +364,15 @@ class Scope:
         self._driver_choice[cache_key] = choice
         return choice
 
-    def observers(self, bit: BitRef, modes: Modes) -> tuple[str, ...]:
-        """Scan pins that capture `bit` in these modes."""
+    def observers(self, bit: BitRef, modes: Modes,
+                  modes_key: tuple[tuple[str, str], ...] | None = None) -> tuple[str, ...]:
+        """Scan pins that capture `bit` in these modes (`modes_key`, when given, caches it)."""
+        if modes_key is not None:
+            cache_key = (modes_key, bit.target)
+            known = self._observer_choice.get(cache_key)
+            if known is None:
+                known = self._observer_choice[cache_key] = self.observers(bit, modes)
+            return known
         pins = (PinRef.parse(bit.target),) if bit.is_pin else self.scan_pins(bit.target)
         found = []
         for pin in pins:
