@@ -39,7 +39,7 @@ def test_examples_check_clean_in_a_subprocess(name: str):
     done = subprocess.run([sys.executable, "-m", "scanloom.cli", "check", f"{name}.loom"],
                           cwd=EXAMPLES, capture_output=True, text=True, check=False)
     assert done.returncode == 0, done.stderr
-    assert re.fullmatch(rf"{name}\.loom: \d+ tests, \d+ steps, no errors\n", done.stdout)
+    assert re.fullmatch(rf"{name}\.loom: \d+ tests?, \d+ steps?, no errors\n", done.stdout)
     assert done.stderr == ""
 
 
@@ -102,7 +102,7 @@ def test_board_option_overrides_the_program(workdir: Path, tmp_path: Path):
     program.write_text('board "not-used.yaml"\ntest t "t" {\n    read U1 DEVICE_ID\n}\n')
     result = invoke("check", str(program), "--board", str(workdir / "irrigation.yaml"))
     assert result.exit_code == 0, result.stderr
-    assert "1 tests, 1 steps, no errors" in result.stdout
+    assert re.search(r"1 tests?, 1 steps?, no errors", result.stdout)
 
 
 def test_warnings_pass_unless_strict(workdir: Path):
