@@ -122,6 +122,7 @@ class ElectricalBoard:
     logic_receivers: Mapping[PinRef, LogicReceiver]
     readers_of_pin: Mapping[PinRef, tuple[int, ...]]  # input pin -> indexes into `logic`
     series: tuple[tuple[PinRef, PinRef], ...]
+    series_of_node: Mapping[int, tuple[tuple[PinRef, PinRef], ...]]  # the series links inside a node
     devices: tuple[DeviceModel, ...]
     refs: tuple[str, ...]
     span: SourceSpan | None = field(default=None)
@@ -269,6 +270,10 @@ def build_electrical(board: Board, diagnostics: Diagnostics,
 
     ordered = _evaluation_order(board, logic, logic_of_pin, node_of_pin, nodes, diagnostics)
     diagnostics.raise_if_errors()
+    series_of_node: dict[int, list[tuple[PinRef, PinRef]]] = {}
+    for a, b in series:
+        if a in node_of_pin and node_of_pin.get(b) == node_of_pin[a]:
+            series_of_node.setdefault(node_of_pin[a], []).append((a, b))
     readers: dict[PinRef, list[int]] = {}
     for index, item in enumerate(ordered):
         for name in item.reads:
@@ -278,7 +283,8 @@ def build_electrical(board: Board, diagnostics: Diagnostics,
         net_of_pin=net_of_pin, drivers=drivers, receivers=receivers, logic=tuple(ordered),
         logic_of_pin=logic_of_pin, logic_receivers=logic_receivers,
         readers_of_pin={pin: tuple(found) for pin, found in readers.items()},
-        series=tuple(series), devices=tuple(devices), refs=tuple(e.ref for e in board.chain),
+        series=tuple(series), series_of_node={n: tuple(links) for n, links in series_of_node.items()},
+        devices=tuple(devices), refs=tuple(e.ref for e in board.chain),
         span=board.span_of(""),
     )
 
