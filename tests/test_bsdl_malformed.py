@@ -28,6 +28,10 @@ VARIANTS = [
     # IEEE Std 1076, 13.6: a string literal ends on its own line.
     ("unterminated-string", [('"XX01";', '"XX01;')],
      r"this string is not closed on its line", "82:61"),
+    ("unterminated-later-piece", [('"PRIV_TRIM (1100)";', '"PRIV_TRIM (1100);')],
+     r"this string is not closed on its line", "80:3"),
+    ("ampersand-without-string", [('"PRIV_SCAN (101X), " &', '"PRIV_SCAN (101X), " & ;')],
+     r"`&` must join two strings", "79:26"),
     ("truncated", [("end TIDEPOOL_IO16;", "")],
      r"the file ends before the entity is complete", "147:56"),
     # IEEE Std 1076 port modes; BSDL uses in, out, inout, buffer, linkage (B.8.1, from memory).
@@ -71,6 +75,9 @@ VARIANTS = [
     ("order", [('" 24 (BC_1,  STAT', '" 99 (BC_1,  STAT'), ('" 25 (BC_0', '" 24 (BC_0'),
                ('" 99 (BC_1,  STAT', '" 25 (BC_1,  STAT')],
      r"cell 24 is out of order: the entries so far are ascending", "140:5"),
+    ("missing-comma-between-cells",
+     [('"  0 (BC_4,  CLK_IN,  clock,    X),  ', '"  0 (BC_4,  CLK_IN,  clock,    X)   ')],
+     r"expected `,` between boundary cells, found `1`", "115:6"),
     # B.8.14 (from memory): a 3-state or bidirectional cell names an existing CONTROL cell.
     ("control-not-control", [("Y(0),    output3,  X,  16", "Y(0),    output3,  X,  15")],
      r"cell 17 names control cell 15, whose function is INPUT", "131:39"),

@@ -65,6 +65,8 @@ def build_device(tree: BsdlFile, source: SourceText, diagnostics: Diagnostics) -
 
 
 class _DeviceBuilder(RegisterReading):
+    """One file's attributes, read in dependency order (ports, TAP, lengths, registers, cells)."""
+
     def __init__(self, tree: BsdlFile, source: SourceText, diagnostics: Diagnostics) -> None:
         self.tree = tree
         self.entity = tree.entity
