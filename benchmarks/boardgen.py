@@ -116,13 +116,16 @@ def generate_board(size: str, out_dir: Path) -> Path:
     out_dir.mkdir(parents=True, exist_ok=True)
     (out_dir / "bsdl").mkdir(exist_ok=True)
     outputs, _controls, inputs = _split(spec.cells)
-    ir_lengths = [rng.choice((3, 4, 5, 6, 8)) for _ in range(spec.devices)]
+    types = min(8, spec.devices)
+    ir_lengths = [rng.choice((3, 4, 5, 6, 8)) for _ in range(types)]
+    for t in range(types):
+        name = f"SYNTH{t:02d}"
+        write_bsdl(out_dir / "bsdl" / f"{name.lower()}.bsd", name, spec.cells, ir_lengths[t], 0x100 + t)
     lines = [f"# Synthetic benchmark board '{size}': {spec.devices} devices x {spec.cells} cells.",
              f"board: synthetic {size}", "technology: cmos", "chain:"]
     for d in range(spec.devices):
-        name = f"SYNTH{d:02d}"
-        write_bsdl(out_dir / "bsdl" / f"{name.lower()}.bsd", name, spec.cells, ir_lengths[d], 0x100 + d)
-        lines.append(f"  - {{ref: U{d + 1}, bsdl: bsdl/{name.lower()}.bsd}}")
+        name = f"SYNTH{d % types:02d}".lower()
+        lines.append(f"  - {{ref: U{d + 1}, bsdl: bsdl/{name}.bsd}}")
     lines.append("nets:")
     next_input = [0] * spec.devices
     for d in range(spec.devices):
@@ -138,6 +141,37 @@ def generate_board(size: str, out_dir: Path) -> Path:
     board = out_dir / f"synthetic_{size}.yaml"
     board.write_text("\n".join(lines) + "\n")
     return board
+
+
+def generate_program(board: Path, steps: int = 40, seed: int = 5) -> Path:
+    """A program of `steps` EXTEST steps driving every net of a synthetic board with random
+    values and expecting them back: one group per driving device keeps the text compact."""
+    if board == DEMO_BOARD:
+        return DEMO_BOARD.parent / "valve_nets.loom"
+    rng = random.Random(seed)
+    groups: dict[str, list[str]] = {}
+    for line in board.read_text().splitlines():
+        if line.startswith("  N") and ":" in line:
+            net = line.split(":", 1)[0].strip()
+            device = net[1:].split("_", 1)[0]
+            groups.setdefault(device, []).append(net)
+    out = [f"# generated: {steps} EXTEST steps over every net of {board.name}",
+           f'board "{board.name}"', "tck 10 MHz", ""]
+    for device, nets in groups.items():
+        out.append(f"group G{device} = [{', '.join(reversed(nets))}]")
+    out += ["", 'test all_nets "every net driven and read back" {',
+            f"    {', '.join(f'U{d}' for d in groups)} EXTEST"]
+    for step in range(steps):
+        out.append(f"    step v{step} {{")
+        for device, nets in groups.items():
+            value = rng.getrandbits(len(nets))
+            out.append(f"        drive G{device} = 0x{value:x}")
+            out.append(f"        expect G{device} = 0x{value:x}")
+        out.append("    }")
+    out.append("}")
+    program = board.parent / f"{board.stem}_nets.loom"
+    program.write_text("\n".join(out) + "\n")
+    return program
 
 
 def main() -> None:

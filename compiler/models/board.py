@@ -7,6 +7,7 @@ pin name for parts without boundary scan.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import cached_property
 
@@ -74,7 +75,7 @@ class Net:
     name: str
     pins: tuple[PinRef, ...]
     tap: bool = False  # declared as carrying a TAP signal
-    span: SourceSpan | None = None
+    span: SourceSpan | None = None  # usually None: Board.span_of("nets", name) finds it on demand
 
 
 @dataclass(frozen=True, eq=False)
@@ -91,7 +92,7 @@ class Board:
     pulls: dict[str, str]  # net -> "up" or "down"
     hold: dict[str, str]  # net -> "0" or "1": must be held at this value
     never_drive: tuple[str, ...]  # nets no scan device may drive
-    spans: dict[str, SourceSpan] = field(default_factory=dict)  # YAML path -> span
+    spans: Mapping[str, SourceSpan] = field(default_factory=dict)  # YAML path -> span
 
     @cached_property
     def devices(self) -> dict[str, ChainDevice]:

@@ -110,7 +110,7 @@ class _BoardBuilder:
         return Board(
             name=str(name), path=self.file, technology=technology, trst=trst,
             chain=tuple(chain), parts=parts, nets=nets, pulls=pulls, hold=hold,
-            never_drive=tuple(never), spans=dict(self.doc.spans),
+            never_drive=tuple(never), spans=self.doc.spans,
         )
 
     def technology(self, value: Any, *path: str | int) -> str | None:
@@ -282,7 +282,7 @@ class _BoardBuilder:
                     continue
                 owner[pin] = name
                 pins.append(pin)
-            nets[name] = Net(name, tuple(pins), tap, self.span("nets", name))
+            nets[name] = Net(name, tuple(pins), tap)  # its span: board.span_of("nets", name)
         return nets
 
     def pin(self, text: str, devices: dict[str, DeviceModel], parts: dict[str, Part],
@@ -306,8 +306,8 @@ class _BoardBuilder:
         if ref in devices:
             device = devices[ref]
             bit = port.upper().replace(" ", "")
-            bits = device.port_bits()
-            if bit not in bits:
+            if bit not in device.port_bit_set:
+                bits = device.port_bits()
                 if bit in device.ports and device.ports[bit].width > 1:
                     self.error(f"{ref}.{port} is a vector port; name one bit", *path,
                                expected=f"one of {device.ports[bit].bits[0]} .. {device.ports[bit].bits[-1]}")

@@ -159,6 +159,10 @@ class DeviceModel:
     def public_instructions(self) -> tuple[str, ...]:
         return tuple(name for name in self.instructions if name not in self.private)
 
+    @cached_property
+    def port_bit_set(self) -> frozenset[str]:
+        return frozenset(bit for port in self.ports.values() for bit in port.bits)
+
     def port_bits(self) -> tuple[str, ...]:
         return tuple(bit for port in self.ports.values() for bit in port.bits)
 

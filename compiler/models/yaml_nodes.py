@@ -1,40 +1,22 @@
 """YAML with positions: plain Python data plus a span for every node, keyed by its path.
 
 `yaml.safe_load` forgets where things were; board-file errors must name line and column, so we
-compose the node tree with the safe loader and convert it ourselves, noting each node's start.
+compose the node tree with the safe loader and convert it ourselves, keeping each node so its
+span can be made when someone asks (boards have a hundred thousand nodes, errors are few).
 Duplicate mapping keys (which YAML would silently overwrite) are reported.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import re
+from collections.abc import Iterator, Mapping
 from typing import Any
 
 import yaml
 
 from ..diagnostics import Diagnostics, SourceSpan
 
-__all__ = ["PositionedYaml", "load_positioned_yaml"]
-
-
-@dataclass
-class PositionedYaml:
-    data: Any
-    spans: dict[str, SourceSpan] = field(default_factory=dict)  # "a/b/0" -> span
-    key_spans: dict[str, SourceSpan] = field(default_factory=dict)  # span of the key itself
-
-    def span(self, *path: str | int) -> SourceSpan | None:
-        key = "/".join(str(p) for p in path)
-        while True:
-            if key in self.spans:
-                return self.spans[key]
-            if not key:
-                return None
-            key = key.rpartition("/")[0]
-
-    def key_span(self, *path: str | int) -> SourceSpan | None:
-        key = "/".join(str(p) for p in path)
-        return self.key_spans.get(key) or self.span(*path)
+__all__ = ["PositionedYaml", "NodeSpans", "load_positioned_yaml"]
 
 
 def _span(file: str, node: yaml.Node) -> SourceSpan:
@@ -43,7 +25,66 @@ def _span(file: str, node: yaml.Node) -> SourceSpan:
     return SourceSpan(file, start.line + 1, start.column + 1, start.line + 1, max(end_col, start.column + 2))
 
 
+class NodeSpans(Mapping[str, SourceSpan]):
+    """Path ("nets/DATA0/1") -> span, made from the YAML node on first access."""
+
+    def __init__(self, file: str, nodes: dict[str, yaml.Node]):
+        self.file = file
+        self._nodes = nodes
+
+    def __getitem__(self, key: str) -> SourceSpan:
+        return _span(self.file, self._nodes[key])
+
+    def __contains__(self, key: object) -> bool:
+        return key in self._nodes
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._nodes)
+
+    def __len__(self) -> int:
+        return len(self._nodes)
+
+
+class PositionedYaml:
+    def __init__(self, data: Any, file: str):
+        self.data = data
+        self.file = file
+        self.nodes: dict[str, yaml.Node] = {}
+        self.key_nodes: dict[str, yaml.Node] = {}
+        self.spans = NodeSpans(file, self.nodes)
+
+    def span(self, *path: str | int) -> SourceSpan | None:
+        key = "/".join(str(p) for p in path)
+        while True:
+            if key in self.nodes:
+                return _span(self.file, self.nodes[key])
+            if not key:
+                return None
+            key = key.rpartition("/")[0]
+
+    def key_span(self, *path: str | int) -> SourceSpan | None:
+        key = "/".join(str(p) for p in path)
+        node = self.key_nodes.get(key)
+        return _span(self.file, node) if node is not None else self.span(*path)
+
+
 _STR_TAG = "tag:yaml.org,2002:str"
+# A plain scalar can only be a number, bool, null, date, merge key or value indicator when it
+# starts with one of these characters (YAML 1.1 implicit resolvers, as pyyaml registers them).
+_MAYBE_TYPED = re.compile(r"[-+.0-9~=<yYnNtTfFoO]")
+
+
+class _Composer(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):  # type: ignore[misc]
+    """libyaml's safe loader (when pyyaml has it) with a quick answer for plain names.
+
+    Board files are mostly pin names such as U1.PA(0); the general resolver tries its regular
+    expressions on every scalar, which dominates loading a large board.
+    """
+
+    def resolve(self, kind: type, value: Any, implicit: Any) -> str:
+        if kind is yaml.ScalarNode and implicit[0] and value and not _MAYBE_TYPED.match(value):
+            return _STR_TAG
+        return super().resolve(kind, value, implicit)
 
 
 def _scalar(node: yaml.ScalarNode, loader: yaml.SafeLoader) -> Any:
@@ -55,7 +96,7 @@ def _scalar(node: yaml.ScalarNode, loader: yaml.SafeLoader) -> Any:
 def load_positioned_yaml(text: str, file: str, diagnostics: Diagnostics) -> PositionedYaml | None:
     """Parse YAML text; None (with a diagnostic) when it is not well-formed YAML."""
     try:
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
+        root = yaml.compose(text, Loader=_Composer)
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         span = SourceSpan(file, mark.line + 1, mark.column + 1) if mark else SourceSpan(file, 1, 1)
@@ -63,27 +104,32 @@ def load_positioned_yaml(text: str, file: str, diagnostics: Diagnostics) -> Posi
         diagnostics.error(f"the board file is not valid YAML: {problem}", span,
                           expected="a YAML mapping with keys such as board, chain and nets")
         return None
-    result = PositionedYaml(None)
+    result = PositionedYaml(None, file)
     loader = yaml.SafeLoader("")
     if root is None:
-        result.data = None
         return result
+    nodes = result.nodes
+    key_nodes = result.key_nodes
 
     def convert(node: yaml.Node, path: str) -> Any:
-        result.spans[path] = _span(file, node)
+        nodes[path] = node
         if isinstance(node, yaml.MappingNode):
             out: dict[Any, Any] = {}
+            prefix = f"{path}/" if path else ""
             for key_node, value_node in node.value:
                 key = convert_key(key_node)
-                child = f"{path}/{key}" if path else str(key)
+                child = f"{prefix}{key}"
                 if key in out:
                     diagnostics.error(f"'{key}' appears twice in the same mapping", _span(file, key_node),
                                       hint="YAML keeps only the last one; merge the two entries")
-                result.key_spans[child] = _span(file, key_node)
+                key_nodes[child] = key_node
                 out[key] = convert(value_node, child)
             return out
         if isinstance(node, yaml.SequenceNode):
-            return [convert(item, f"{path}/{i}" if path else str(i)) for i, item in enumerate(node.value)]
+            prefix = f"{path}/" if path else ""
+            return [convert(item, f"{prefix}{i}") for i, item in enumerate(node.value)]
+        if node.tag == _STR_TAG:
+            return node.value
         return _scalar(node, loader)  # type: ignore[arg-type]
 
     def convert_key(node: yaml.Node) -> Any:
