@@ -1,4 +1,4 @@
-"""A pause of Python's cycle collector while the front end builds large acyclic structures.
+"""A pause of Python's cycle collector while a stage builds large acyclic structures.
 
 A big program becomes millions of small frozen records (tree nodes, resolved bits, IR drives)
 that never form reference cycles; the cyclic collector would rescan them over and over as they

@@ -21,7 +21,7 @@ from typing import Iterator, Mapping, Sequence
 from bitarray import bitarray, frozenbitarray
 
 from ..ir import COMPUTED, Program, RegisterRead, Step, Test, Wait
-from ..lang.bulk import collector_paused
+from ..collector import collector_paused
 from ..models.board import Board, PinRef
 from ..models.device import BoundaryCell
 from .chainmap import build_chain_map, register_lengths

@@ -21,7 +21,7 @@ from ..models.board import Board
 from ..models.device import DeviceModel
 from ..safety_checks import CHECKS as SAFETY_CHECKS
 from . import ast
-from .bulk import collector_paused
+from ..collector import collector_paused
 from .includes import ProgramFiles
 from .resolve import BitRef, Scope, observes_pins
 from .header import Header, read_header

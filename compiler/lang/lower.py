@@ -15,7 +15,7 @@ from __future__ import annotations
 from ..diagnostics import SourceSpan
 from ..ir import Drive, Expect, Program, RegisterRead, RegisterWrite, Step, Test, TestItem, Wait
 from ..models.board import Board
-from .bulk import collector_paused
+from ..collector import collector_paused
 from .checks import BitValue, ProgramPlan, StepPlan, TestPlan, WaitPlan
 from .resolve import Scope
 

@@ -21,7 +21,7 @@ from lark.exceptions import (
 
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, read_source
 from . import ast
-from .bulk import collector_paused
+from ..collector import collector_paused
 
 __all__ = ["parse_text", "parse_source", "parse_file", "grammar_parser"]
 
