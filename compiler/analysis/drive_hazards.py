@@ -107,6 +107,8 @@ def check_drive_hazards(program: Program, board: Board) -> list[Finding]:
     seen: set[tuple[str, str, str]] = set()
     for test in program.tests:
         for step in test.steps:
+            if not contested and not guarded:
+                break
             kinds = outputs.kinds(step)
             images = outputs.step_images(step, kinds)
             functional = outputs.functional(kinds, step)
