@@ -212,6 +212,86 @@ def fmt_command(program: str, check_only: bool, write: bool) -> None:
     click.echo(formatted, nl=False)
 
 
+@main.command("simulate", epilog=EXIT_CODES_HELP)
+@click.argument("shift_file", type=click.Path(dir_okay=False))
+@click.option("--fault", "fault_specs", multiple=True, metavar="SPEC",
+              help="Inject a fault (repeatable): open:REF.PORT, open:NET, short:NET_A,NET_B[:and|:or|:REF.PORT], "
+                   "short:NET,REF.TDO (TDI, TMS, TCK), stuck-at-0:NET, stuck-at-1:NET.")
+@click.option("--capture", "capture_path", type=click.Path(dir_okay=False),
+              help="Write the TDO the board returns as CSV `cycle,tdo`, one row per TCK.")
+@click.option("--limit", default=50, show_default=True, type=click.IntRange(min=0),
+              help="Show at most this many failing bits (0 shows all).")
+def simulate_command(shift_file: str, fault_specs: tuple[str, ...], capture_path: str | None,
+                     limit: int) -> None:
+    """Play SHIFT_FILE (DIR/<stem>.json) on the virtual board, cycle by cycle, and compare.
+
+    Every device's TAP and registers are simulated; the nets are resolved from the scan
+    drivers, pulls and the board's logic at every update and read at every Capture-DR.
+    Prints pass or fail with each failing bit's test, step, device, cell, port and net.
+    Exit 0 pass, 1 fail, 2 bad input.
+    """
+    from pathlib import Path
+
+    from .analysis.board_runs import capture_table, faults_for, load_shift_run, simulate_run
+    from .backend.writers.atomic import write_atomically
+
+    try:
+        run = load_shift_run(shift_file)
+        faults = faults_for(run, fault_specs)
+        report = simulate_run(run, faults)
+    except ScanloomError as error:
+        sys.exit(report_error(error))
+    if capture_path:
+        write_atomically(Path(capture_path), capture_table(report.result))
+    text = report.render(limit)
+    if faults:
+        text = "with " + ", ".join(f.spec for f in faults) + ":\n" + text
+    click.echo(text, nl=False)
+    sys.exit(EXIT_OK if report.passed else EXIT_FAIL)
+
+
+@main.command("faults", epilog=EXIT_CODES_HELP)
+@click.argument("target", type=click.Path(dir_okay=False))
+@click.option("--faults", "faults_file", type=click.Path(dir_okay=False),
+              help="Grade the faults of this file (one spec per line, # comments) instead of the universe.")
+@click.option("--universe", default="opens,shorts,stuck", show_default=True,
+              help="Fault classes of the universe: opens, shorts, stuck (comma-separated).")
+@click.option("--json", "as_json", is_flag=True, help="Print the grading as JSON.")
+@click.option("--summary", is_flag=True, help="Print only the coverage summary.")
+def faults_command(target: str, faults_file: str | None, universe: str, as_json: bool, summary: bool) -> None:
+    """Grade the faults a program detects: TARGET is a program (.loom) or a shift file (.json).
+
+    For each fault: detected, possibly detected (the faulty value is X where the fault-free
+    board's is known) or not detected, with the first detecting test, step and bit, or the
+    reason in words; then coverage per fault class. Exit 0 when graded, 2 on bad input.
+    """
+    import json
+
+    from .analysis.board_runs import faults_for, grade_run, load_run
+    from .sim.faults import UNIVERSE_CLASSES
+
+    classes = tuple(c.strip() for c in universe.split(",") if c.strip())
+    unknown = [c for c in classes if c not in UNIVERSE_CLASSES]
+    if unknown or not classes:
+        raise click.BadParameter(f"unknown fault class {', '.join(unknown) or '(none)'}; "
+                                 f"choose from {', '.join(UNIVERSE_CLASSES)}", param_hint="--universe")
+    diagnostics = Diagnostics()
+    try:
+        run = load_run(target, diagnostics)
+        faults = faults_for(run, (), faults_file, classes)
+        if sys.stderr.isatty() and len(faults) > 200:
+            with click.progressbar(length=len(faults), label="grading", file=sys.stderr) as bar:
+                report = grade_run(run, faults, lambda done: bar.update(1))
+        else:
+            report = grade_run(run, faults)
+    except ScanloomError as error:
+        sys.exit(report_error(error))
+    if as_json:
+        click.echo(json.dumps(report.as_data(), indent=2))
+    else:
+        click.echo(report.render(details=not summary), nl=False)
+
+
 def _write_atomically(path: str, text: str) -> None:
     """Write through a temporary file in the same folder, then rename over the original."""
     import os
