@@ -11,7 +11,6 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from .analysis.prehardware import CheckReport, check_program, report_findings
-from .analysis.sequencing import check_preload
 from .backend.cycle_stream import CycleStream
 from .backend.cycles import lay_out_cycles
 from .backend.records import ScanProgram
@@ -55,33 +54,37 @@ def _computed_expectations(program: Program, board: Board) -> dict[tuple[str, st
     return dict(compute_expectations(program, board))
 
 
+def _front_to_cycles(path: str | Path, diagnostics: Diagnostics, board_override: str | Path | None,
+                     computed: bool) -> tuple[CheckedProgram, ScanProgram, CycleStream]:
+    program, board = load_program(path, diagnostics, board_override)
+    values = _computed_expectations(program, board) if computed else {}
+    scan = schedule(program, board, values)
+    cycles = lay_out_cycles(scan)
+    report = check_program(program, board, scan, cycles)
+    report_findings(report, diagnostics)
+    scan = replace(scan, notes=tuple(scan.notes) + tuple(report.allowed_notes()))
+    return CheckedProgram(program, board, report), scan, cycles
+
+
 def check_source_program(path: str | Path, diagnostics: Diagnostics,
                          board_override: str | Path | None = None) -> CheckedProgram:
-    """The front end and the pre-hardware checks.
+    """The front end and the pre-hardware checks (on the scheduled records and cycles too).
 
     Front-end errors raise; pre-hardware findings go into `diagnostics` (the caller decides).
     """
-    program, board = load_program(path, diagnostics, board_override)
-    report = check_program(program, board)
-    report_findings(report, diagnostics)
-    return CheckedProgram(program, board, report)
+    return _front_to_cycles(path, diagnostics, board_override, computed=False)[0]
 
 
 def compile_program(path: str | Path, out_dir: str | Path, formats: set[str], diagnostics: Diagnostics,
                     board_override: str | Path | None = None) -> CompileResult:
-    checked = check_source_program(path, diagnostics, board_override)
+    checked, scan, cycles = _front_to_cycles(path, diagnostics, board_override, computed=True)
     diagnostics.raise_if_errors()
-    program, board = checked.program, checked.board
-    scan = schedule(program, board, _computed_expectations(program, board))
-    scan = replace(scan, notes=tuple(scan.notes) + tuple(checked.report.allowed_notes()))
-    cycles = lay_out_cycles(scan)
     report = replay(scan, cycles)
-    problems = [str(m) for m in report.mismatches] + [f.message for f in check_preload(scan)]
-    if problems:
+    if not report.ok:
         raise CompilerBug([Diagnostic(
             "error", "internal error: the independent replay disagrees with the compiled scans",
             hint="this is a scanloom bug; please report it with the program and board\n"
-                 + "\n".join(problems[:20]))])
+                 + report.render(limit=20))])
     from .backend.writers import write_outputs
 
     written = write_outputs(scan, cycles, Path(out_dir), Path(path).stem, formats)

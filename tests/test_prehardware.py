@@ -195,3 +195,36 @@ def test_preload_check_on_records_from_elsewhere() -> None:
     found = only(check_records(edited).findings, "no_preload")
     assert re.match(r"record \d+ \(IR scan\): U1 enters EXTEST but its boundary register was not "
                     r"loaded since Test-Logic-Reset", found[0].message)
+
+
+def test_short_fight_at_a_slow_tck(tmp_path: Path) -> None:
+    # VALVE_D0 and VALVE_D1 leave U1 on neighbouring balls; driven 1 and 0 at 1 kHz, the vector
+    # stays applied for about a quarter of a second: shorted, the drivers would fight that long,
+    # far above the 1 ms limit (common practice for output-to-output fights).
+    path = write_program(tmp_path, """
+test slow "opposite values on neighbours, slowly" {
+    U1 EXTEST
+    step opposed {
+        drive WDOG_DIS = 1, VALVE_D0 = 1, VALVE_D1 = 0
+    }
+    step again {
+        drive VALVE_D0 = 0, VALVE_D1 = 1
+    }
+}
+""", header="tck 1 kHz")
+    diagnostics = Diagnostics()
+    program, board = load_program(path, diagnostics)
+    scan = schedule(program, board)
+    from scanloom.backend.cycles import lay_out_cycles
+
+    found = only(check_program(program, board, scan, lay_out_cycles(scan)).findings, "short_fight")
+    assert re.match(r"adjacent pins U1\.\S+ and U1\.\S+( and \d+ more pairs)? are driven to opposite "
+                    r"values in step opposed: if shorted, the drivers would fight for [\d.]+ ms "
+                    r"\(limit 1 ms\)", found[0].message)
+    assert found[0].span.line == 6
+    # At 10 MHz the same vectors stay well under the limit.
+    fast = write_program(tmp_path, path.read_text().split("\n", 2)[2], header="tck 10 MHz")
+    program, board = load_program(fast, Diagnostics())
+    scan = schedule(program, board)
+    assert not [f for f in check_program(program, board, scan, lay_out_cycles(scan)).findings
+                if f.check == "short_fight"]

@@ -10,12 +10,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from ..backend.cycle_stream import CycleStream
 from ..backend.records import ScanProgram
 from ..diagnostics import Diagnostic, Diagnostics
 from ..ir import Program
 from ..models.board import Board
 from ..safety_checks import CHECKS, Finding
 from .drive_hazards import check_drive_hazards
+from .short_fights import check_short_fights
 from .sequencing import check_compliance, check_preload, check_self_test_idle, check_tck
 
 __all__ = ["CheckReport", "check_program", "check_records", "report_findings"]
@@ -32,7 +34,9 @@ class CheckReport:
                 for f, reason in self.allowed]
 
 
-def check_program(program: Program, board: Board, scan: ScanProgram | None = None) -> CheckReport:
+def check_program(program: Program, board: Board, scan: ScanProgram | None = None,
+                  cycles: CycleStream | None = None) -> CheckReport:
+    """Every check on a program; those that need the records or the cycles run when given."""
     findings: list[Finding] = []
     findings += check_tck(program, board)
     findings += check_compliance(program, board)
@@ -40,6 +44,10 @@ def check_program(program: Program, board: Board, scan: ScanProgram | None = Non
     findings += check_drive_hazards(program, board)
     if scan is not None:
         findings += check_preload(scan)
+        if cycles is not None:
+            spans = {(t.name, s.name): s.span for t in program.tests for s in t.steps}
+            findings += check_short_fights(scan, cycles, board, program.tck_hz,
+                                           program.fight_limit_s, spans)
     return _apply_overrides(program, findings)
 
 
