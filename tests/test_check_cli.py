@@ -107,16 +107,27 @@ def test_board_option_overrides_the_program(workdir: Path, tmp_path: Path):
 
 def test_warnings_pass_unless_strict(workdir: Path):
     program = workdir / "warn.loom"
-    program.write_text('board "irrigation.yaml"\ntest t "t" {\n    U1 EXTEST\n    step s {\n'
-                       "        drive WDOG_DIS = 1\n        expect U3.MUXY(0) = 1\n    }\n}\n")
+    program.write_text('board "irrigation.yaml"\ntest t "t" {\n}\n')
     result = invoke("check", str(program))
     assert result.exit_code == 0
-    assert re.search(r"warn\.loom:6:16: warning: the expectation on U3\.MUXY\(0\) will be "
-                     r"ignored: U3 is in BYPASS", result.stderr)
+    assert re.search(r"warn\.loom:2:6: warning: test t has no steps", result.stderr)
     assert result.stdout.endswith("no errors, 1 warning\n")
     strict = invoke("check", str(program), "--strict")
     assert strict.exit_code == 1
-    assert re.search(r"warn\.loom:6:16: error: the expectation on U3\.MUXY\(0\)", strict.stderr)
+    assert re.search(r"warn\.loom:2:6: error: test t has no steps", strict.stderr)
+
+
+def test_expectation_on_a_bypassed_device_fails_the_check(workdir: Path):
+    # The language warns that the expectation would be ignored; the pre-hardware check makes it
+    # an error (the device's boundary register is not in the chain).
+    program = workdir / "bypassed.loom"
+    program.write_text('board "irrigation.yaml"\ntest t "t" {\n    U1 EXTEST\n    step s {\n'
+                       "        drive WDOG_DIS = 1\n        expect U3.MUXY(0) = 1\n    }\n}\n")
+    result = invoke("check", str(program))
+    assert result.exit_code == 1
+    assert re.search(r"bypassed\.loom:6:\d+: error: \[bypass_expect\] U3\.MUXY\(0\) is expected 1 in "
+                     r"step s, but U3 is in BYPASS", result.stderr)
+    assert "will be ignored" not in result.stderr
 
 
 def test_fmt_prints_checks_and_writes(workdir: Path):

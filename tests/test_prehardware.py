@@ -228,3 +228,27 @@ test slow "opposite values on neighbours, slowly" {
     scan = schedule(program, board)
     assert not [f for f in check_program(program, board, scan, lay_out_cycles(scan)).findings
                 if f.check == "short_fight"]
+
+
+def test_expectation_on_a_device_in_bypass_is_an_error(tmp_path: Path) -> None:
+    # U2 stays in BYPASS (the default): its boundary register is not in the chain, so the
+    # expectation could never be compared (IEEE Std 1149.1, BYPASS register).
+    path = write_program(tmp_path, """
+test t "expects on a bypassed device" {
+    U1 EXTEST
+    step s {
+        drive WDOG_DIS = 1, VALVE_D0 = 1
+        expect U2.VIN(0) = 1
+    }
+}
+""")
+    found = only(findings_of(path), "bypass_expect")
+    assert re.fullmatch(r"U2\.VIN\(0\) is expected 1 in step s, but U2 is in BYPASS: its boundary "
+                        r"register is not in the chain", found[0].message)
+    assert found[0].span.line == 8
+    from scanloom.pipeline import check_source_program
+
+    diagnostics = Diagnostics()
+    check_source_program(path, diagnostics)
+    # The language's own warning for the same expectation gives way to the error.
+    assert [d.severity for d in diagnostics.items if d.span and d.span.line == 8] == ["error"]

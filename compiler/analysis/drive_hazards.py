@@ -18,7 +18,7 @@ from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells, series_groups
 from ..safety_checks import Finding
 
-__all__ = ["check_drive_hazards", "EnabledOutput", "StepOutputs"]
+__all__ = ["check_drive_hazards", "check_bypass_expectations", "EnabledOutput", "StepOutputs"]
 
 _FUNCTIONAL_KINDS = frozenset({"observe", "bypass", "device_id", "user"})  # system logic drives pins
 
@@ -161,3 +161,28 @@ def check_drive_hazards(program: Program, board: Board) -> list[Finding]:
 def _pulled_to(board: Board, node: tuple[str, ...], value: str) -> bool:
     want = "up" if value == "1" else "down"
     return any(board.pulls.get(net) == want for net in node)
+
+
+def check_bypass_expectations(program: Program, board: Board) -> list[Finding]:
+    """An expectation on a pin of a device left in BYPASS (or another mode that does not select
+    the boundary register) can never be compared: the device's boundary register is not in the
+    chain (IEEE Std 1149.1, BYPASS: a one-bit register between TDI and TDO)."""
+    findings: list[Finding] = []
+    for test in program.tests:
+        for step in test.steps:
+            modes = dict(step.modes)
+            for expect in step.expects:
+                if not expect.is_pin or expect.value not in ("0", "1"):
+                    continue
+                ref = expect.target.partition(".")[0]
+                entry = board.devices.get(ref)
+                if entry is None:
+                    continue
+                instruction = modes.get(ref, "BYPASS")
+                if mode_kind(entry.device, instruction) == "bypass":
+                    findings.append(Finding(
+                        "bypass_expect",
+                        f"{expect.target} is expected {expect.value} in step {step.name}, but {ref} is in "
+                        f"{instruction}: its boundary register is not in the chain",
+                        expect.span or step.span, test.name, step.name))
+    return findings

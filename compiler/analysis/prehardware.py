@@ -16,7 +16,7 @@ from ..diagnostics import Diagnostic, Diagnostics
 from ..ir import Program
 from ..models.board import Board
 from ..safety_checks import CHECKS, Finding
-from .drive_hazards import check_drive_hazards
+from .drive_hazards import check_bypass_expectations, check_drive_hazards
 from .short_fights import check_short_fights
 from .sequencing import check_compliance, check_preload, check_self_test_idle, check_tck
 
@@ -42,6 +42,7 @@ def check_program(program: Program, board: Board, scan: ScanProgram | None = Non
     findings += check_compliance(program, board)
     findings += check_self_test_idle(program, board)
     findings += check_drive_hazards(program, board)
+    findings += check_bypass_expectations(program, board)
     if scan is not None:
         findings += check_preload(scan)
         if cycles is not None:
@@ -75,7 +76,17 @@ def _apply_overrides(program: Program, findings: list[Finding]) -> CheckReport:
 
 
 def report_findings(report: CheckReport, diagnostics: Diagnostics) -> None:
-    """Findings as diagnostics: the check's severity, its name as the code, its hint."""
+    """Findings as diagnostics: the check's severity, its name as the code, its hint.
+
+    A front-end warning at the place of a finding's error (the expectation on a device in
+    BYPASS, which the language only warns about) gives way to the error.
+    """
+    errors = {(f.span.file, f.span.line) for f in report.findings
+              if CHECKS[f.check].severity == "error" and f.span}
+    if errors:
+        diagnostics.items[:] = [d for d in diagnostics.items
+                                if not (d.severity == "warning" and d.code is None and d.span
+                                        and (d.span.file, d.span.line) in errors)]
     for finding in report.findings:
         kind = CHECKS[finding.check]
         message = f"[{kind.name}] {finding.message}"
