@@ -59,6 +59,7 @@ class ScanIndex:
         self.program = program
         self.scans = [i for i, r in enumerate(program.records) if r.kind in (IR_SCAN, DR_SCAN)]
         self.starts = list(cycles.shift_starts)
+        self._layouts: dict[int, tuple[list[int], list]] = {}  # type: ignore[type-arg]
         self._cells: dict[str, dict[int, tuple[str | None, str | None]]] = {}
         for device in program.chain.devices:
             table: dict[int, tuple[str | None, str | None]] = {}
@@ -84,7 +85,12 @@ class ScanIndex:
         if cycle is None:
             position = self.scans.index(record_index)
             cycle = self.starts[position] + scan_bit
-        for segment in record.segments:
+        layout = self._layouts.get(record_index)
+        if layout is None:
+            ordered = sorted(record.segments, key=lambda segment: segment.offset)
+            layout = self._layouts[record_index] = ([segment.offset for segment in ordered], ordered)
+        position = bisect_right(layout[0], scan_bit) - 1
+        for segment in layout[1][max(position, 0):max(position, 0) + 1]:
             if segment.offset <= scan_bit < segment.offset + segment.length:
                 bit = scan_bit - segment.offset
                 port = net = None

@@ -35,8 +35,8 @@ from ..sim.fault_effects import FaultEffect, fault_effect, faulted_groups, good_
 from ..sim.faults import FAULT_CLASSES, OPEN_NET, OPEN_PIN, SHORT, STUCK_AT, TAP_SHORT, Fault
 from ..sim.logic import evaluate
 from ..sim.resolve import (
-    DriveSum, Group, GroupSolver, Level, PinDrive, logic_drive, pull_drive, read_level, resolve_level,
-    scan_pin_drive,
+    DriveSum, Group, GroupSolver, Level, PinDrive, drive_sum, logic_drive, read_level,
+    resolve_level, scan_pin_drive,
 )
 from ..sim.tap_lines import EDGE, clock_activity, line_map, tap_driver_drive
 from ..sim.virtual_board import VirtualBoard, check_chain
@@ -192,7 +192,9 @@ class FaultGrader:
         self.index = ScanIndex(program, cycles)
         self.states: ScanStates = scan_states(program, cycles, electrical.board)
         self.full = self.states.full
-        self.technology = electrical.board.technology_of
+        technologies = {ref: electrical.board.technology_of(ref)
+                        for ref in list(electrical.refs) + list(electrical.board.parts)}
+        self.technology = technologies.__getitem__
         self._pin_drive = self._scan_drives()
         self.good_groups = good_groups(electrical)
         solver = GroupSolver(electrical, self.good_groups, electrical.node_of_pin)
@@ -205,6 +207,9 @@ class FaultGrader:
             enable = evaluate(item.enable, inputs, self.full) if item.enable is not None else None
             self.good_logic[PinRef(item.part, item.pin)] = logic_drive(value, enable)
         self.observers, self.excluded_bits = self._observers()
+        self._segment_offset = {(event.state, d): at for event in self.states.captures
+                                for d, register, at, _ in event.layout if register == "BOUNDARY"}
+        self._drives: dict[PinRef, PinDrive] = {**self.good_logic, **self._pin_drive}
         self._successors: dict[int, set[int]] | None = None
         self._good_simulation = None
         self.simulated = 0
@@ -337,19 +342,20 @@ class FaultGrader:
         full = self.full
         if group.forced is not None:
             return resolve_level(DriveSum(), full, forced=group.forced)
-        total = DriveSum()
         dominant = None
+        changed = work.logic
+        drives = self._drives
+        present: list[PinDrive] = []
         for pin in group.pins:
-            drive = self._pin_drive.get(pin)
+            drive = changed.get(pin) if changed else None
             if drive is None:
-                drive = work.logic.get(pin) or self.good_logic.get(pin)
+                drive = drives.get(pin)
                 if drive is None:
                     continue
-            total = total.plus(drive)
+            present.append(drive)
             if pin == group.dominant:
                 dominant = drive
-        for direction in group.pulls:
-            total = total.plus(pull_drive(direction, full))
+        total = drive_sum(present, group.pulls, full)
         added = work.extra.get(key)
         if added is not None:
             total = total.plus(added)
@@ -378,14 +384,12 @@ class FaultGrader:
                         queued.add(index)
                         heapq.heappush(queue, index)
 
-        replaced = set(effect.replaced)
+        source = effect.replaced[0] if len(effect.replaced) == 1 else None
         for key, group in enumerate(effect.groups):
             level = self._resolve(work, key)
             work.levels[key] = level
-            sources = {self.electrical.node_of_pin[pin] for pin in group.pins}
-            if len(sources) == 1 and level == self.good_levels[next(iter(sources))] and sources <= replaced \
-                    and key not in work.extra:
-                continue  # this piece of the node reads as before
+            if source is not None and key not in work.extra and level == self.good_levels[source]:
+                continue  # this piece of the one node the fault touches reads as before
             push_readers(key)
         logic = self.electrical.logic
         while queue:
@@ -515,9 +519,7 @@ class FaultGrader:
 
     def _earlier(self, best: tuple[int, int] | None, mask: int, obs: _Observer) -> tuple[int, int]:
         state = (mask & -mask).bit_length() - 1
-        event = self.states.capture_of_state[state]
-        offset = next(at for d, register, at, _ in event.layout if d == obs.device and register == "BOUNDARY")
-        candidate = (state, offset + obs.number)
+        candidate = (state, self._segment_offset[(state, obs.device)] + obs.number)
         return candidate if best is None or candidate < best else best
 
     def _detection(self, state: int, scan_bit: int) -> Detection:
@@ -573,14 +575,8 @@ class FaultGrader:
         if tap is None or tap.group is None:
             return None
         group = effect.groups[tap.group]
-        total = DriveSum()
-        for pin in group.pins:
-            drive = self._pin_drive.get(pin) or self.good_logic.get(pin)
-            if drive is not None:
-                total = total.plus(drive)
-        for direction in group.pulls:
-            total = total.plus(pull_drive(direction, self.full))
-        return total
+        present = [drive for drive in (self._drives.get(pin) for pin in group.pins) if drive is not None]
+        return drive_sum(present, group.pulls, self.full)
 
     def _tap_disturbed(self, effect: FaultEffect) -> bool:
         """True when, in some state, some TAP input could read other than on the fault-free board."""

@@ -146,6 +146,13 @@ def _split(electrical: ElectricalBoard, node: ElectricalNode, cut: set[PinRef],
            dropped_nets: set[str]) -> tuple[Group, ...]:
     """The groups a node falls into when the pins in `cut` are isolated from their nets."""
     board = electrical.board
+    if node.index not in electrical.series_of_node and len(node.nets) <= 1:
+        # No series part inside the node: the rest of the net stays together, each cut pin alone.
+        rest = tuple(pin for pin in node.pins if pin not in cut)
+        groups = [Group(node.label, rest, node.pulls if node.nets and node.nets[0] not in dropped_nets else (),
+                        nets=node.nets)] if rest else []
+        groups += [Group(f"{pin} (open)", (pin,)) for pin in node.pins if pin in cut]
+        return tuple(groups)
     parent: dict[object, object] = {}
 
     def find(item: object) -> object:
