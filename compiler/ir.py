@@ -24,6 +24,8 @@ __all__ = [
     "RegisterRead",
     "Step",
     "Wait",
+    "ChainScan",
+    "TapReset",
     "TestItem",
     "Test",
     "Program",
@@ -126,7 +128,32 @@ class Wait:
     span: SourceSpan | None = field(default=None, compare=False)
 
 
-TestItem = Union[Step, Wait]
+@dataclass(frozen=True, slots=True)
+class ChainScan:
+    """A raw data scan of the whole chain with `modes` loaded.
+
+    `tdi` is shifted in and `expected` compared (X: not compared); both are written most
+    significant first, so the rightmost character is bit 0, the first bit shifted. Whatever
+    registers the modes select are shifted as one; bits beyond the chain's length come out of
+    TDO delayed by it. The registers' contents after the scan are not known images.
+    """
+
+    name: str
+    modes: tuple[tuple[str, str], ...]
+    tdi: str
+    expected: str
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True, slots=True)
+class TapReset:
+    """Test-Logic-Reset inside a test: afterwards every device holds its default instruction
+    (IDCODE where it has one, else BYPASS) and no boundary image is known."""
+
+    span: SourceSpan | None = field(default=None, compare=False)
+
+
+TestItem = Union[Step, Wait, ChainScan, TapReset]
 
 
 @dataclass(frozen=True, slots=True)

@@ -10,7 +10,7 @@ import math
 from typing import Iterable
 
 from ..backend.records import DR_SCAN, IR_SCAN, RESET, DeviceMap, ScanProgram
-from ..ir import Program, Step, Wait
+from ..ir import Program, Step, TapReset, TestItem, Wait
 from ..models.board import Board, PinRef
 from ..safety_checks import Finding
 
@@ -127,13 +127,19 @@ def check_self_test_idle(program: Program, board: Board) -> list[Finding]:
     return findings
 
 
-def _mode_runs(items: Iterable[Step | Wait], ref: str) -> list[tuple[str, Step | Wait, int]]:
-    """(instruction, first item, idle clocks) for each stretch a device keeps one instruction."""
-    runs: list[tuple[str, Step | Wait, int]] = []
+def _mode_runs(items: Iterable[TestItem], ref: str) -> list[tuple[str, TestItem, int]]:
+    """(instruction, first item, idle clocks) for each stretch a device keeps one instruction.
+
+    A Test-Logic-Reset ends every stretch; a raw chain scan spends no idle clocks.
+    """
+    runs: list[tuple[str, TestItem, int]] = []
     current: str | None = None
     for item in items:
+        if isinstance(item, TapReset):
+            current = None
+            continue
         mode = dict(item.modes).get(ref)
-        clocks = item.clocks if isinstance(item, Wait) else item.wait_clocks
+        clocks = item.clocks if isinstance(item, Wait) else item.wait_clocks if isinstance(item, Step) else 0
         if mode != current:
             current = mode
             if mode is not None:

@@ -20,7 +20,7 @@ from typing import Iterator, Mapping, Sequence
 
 from bitarray import bitarray, frozenbitarray
 
-from ..ir import COMPUTED, Program, RegisterRead, Step, Test, Wait
+from ..ir import COMPUTED, ChainScan, Program, RegisterRead, Step, TapReset, Test, Wait
 from ..collector import collector_paused
 from ..models.board import Board, PinRef
 from ..models.device import BoundaryCell
@@ -151,6 +151,10 @@ class _Scheduler:
                     self._step(test, item)
                 elif isinstance(item, Wait):
                     self._wait(test, item)
+                elif isinstance(item, ChainScan):
+                    self._chain_scan(test, item)
+                elif isinstance(item, TapReset):
+                    self._tap_reset(test)
                 else:
                     raise TypeError(f"unknown test item {type(item).__name__}")
             # A run never crosses a test: collect the last response before the next test.
@@ -204,6 +208,52 @@ class _Scheduler:
         self._enter(modes, kinds, images, test.name, None)
         if wait.clocks > 0:
             self._idle(wait.clocks, test.name, None, "wait")
+
+    def _chain_scan(self, test: Test, scan: ChainScan) -> None:
+        """A raw data scan of the whole chain: the pattern in, the expected pattern compared.
+
+        Responses still pending are collected first. Devices that drive pins are entered as
+        for a wait (preloaded with the image they hold, or with every output disabled). What
+        the scan leaves in a register with an update stage is not a known image: no intent is
+        recorded for it, and the next step that needs an image loads one again.
+        """
+        self._flush()
+        modes = self._modes(scan.modes)
+        kinds = tuple(self._kind(idx, mode) for idx, mode in enumerate(modes))
+        images = tuple(
+            (self.boundary[idx] if self.boundary[idx] is not None else self.tables[idx].disabled)
+            if kind in PRELOAD_KINDS else None
+            for idx, kind in enumerate(kinds))
+        self._enter(modes, kinds, images, test.name, scan.name)
+        self._flush()
+        layout = self._layout(modes)
+        tdi = bitarray(from_msb_string(scan.tdi))
+        tdo = bitarray(from_msb_string(scan.expected))
+        mask = bitarray(mask_from_msb_string(scan.expected))
+        checks = tuple(
+            CheckRange(segment.device, segment.register, test.name, scan.name)
+            for segment in layout.segments
+            if mask[segment.offset:segment.offset + segment.length].any())
+        self.records.append(ShiftRecord(
+            DR_SCAN, length=len(tdi), tdi=tdi, tdo=tdo & mask, mask=mask, segments=layout.segments,
+            checks=checks, test=test.name, step=scan.name, purpose="chain", intent={}))
+        for idx, register in enumerate(layout.registers):
+            if register == "BOUNDARY":
+                self.boundary[idx] = None
+            else:
+                self.user[idx].pop(register, None)
+        self.applied = None
+
+    def _tap_reset(self, test: Test) -> None:
+        """Test-Logic-Reset: IDCODE (else BYPASS) in force everywhere, no image known."""
+        self._flush()
+        self.records.append(ShiftRecord(RESET, test=test.name, purpose="reset",
+                                        use_trst=self.board.trst, end_state="TEST_LOGIC_RESET"))
+        self.instr = [("IDCODE" if "IDCODE" in device.instructions else "BYPASS")
+                      for device in self.devices]
+        self.boundary = [None] * len(self.refs)
+        self.user = [{} for _ in self.refs]
+        self.applied = None
 
     # ----------------------------------------------------------------------------- modes
     def _instruction(self, idx: int, name: str) -> str:

@@ -17,7 +17,7 @@ __all__ = [
     "Literal", "DontCare", "Released", "Computed", "Value",
     "NameSignal", "PinSignal", "SliceSignal", "Signal",
     "Quantity", "Assignment",
-    "Drive", "Release", "Expect", "Wait", "Read", "Write", "Allow", "ModeSet",
+    "Drive", "Release", "Expect", "Wait", "Read", "Write", "Allow", "ModeSet", "ChainScan", "TapReset",
     "Step", "TableRow", "Table", "Test",
     "BoardDecl", "TckDecl", "IncludeDecl", "GroupDecl", "DefaultModeDecl", "FinishDecl",
     "FightLimitDecl", "Program",
@@ -204,6 +204,29 @@ class ModeSet:
     instruction_span: SourceSpan | None = _span()
 
 
+@dataclass(frozen=True, slots=True)
+class ChainScan:
+    """`scan chain 12 bits in 0x0A5 expect 0xA50`: a raw data scan of the whole chain.
+
+    Whatever registers the modes in force place between TDI and TDO are shifted as one: the
+    value's bit 0 (its rightmost digit) is the first bit shifted in and the expected value's
+    bit 0 the first bit out; bits past the chain's length come out of TDO delayed by it.
+    """
+
+    length: str  # the decimal number of bits, as written
+    shifted: Literal
+    expected: Value | None
+    span: SourceSpan | None = _span()
+    length_span: SourceSpan | None = _span()
+
+
+@dataclass(frozen=True, slots=True)
+class TapReset:
+    """`reset tap`: Test-Logic-Reset; every device then holds its default instruction."""
+
+    span: SourceSpan | None = _span()
+
+
 StepItem = Union[Drive, Release, Expect, Wait, Read, Write, Allow]
 
 
@@ -249,7 +272,7 @@ class Table:
     end_span: SourceSpan | None = _span()
 
 
-TestItem = Union[ModeSet, Step, Table, Wait, Read, Write, Allow]
+TestItem = Union[ModeSet, Step, Table, Wait, Read, Write, Allow, ChainScan, TapReset]
 
 
 @dataclass(frozen=True, slots=True)

@@ -13,7 +13,7 @@ import dataclasses
 import math
 from dataclasses import dataclass
 from itertools import chain
-from typing import Sequence
+from typing import Sequence, Union
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
 from ..ir import Override
@@ -23,12 +23,13 @@ from ..safety_checks import CHECKS as SAFETY_CHECKS
 from . import ast
 from ..collector import collector_paused
 from .includes import ProgramFiles
-from .resolve import BitRef, Scope, observes_pins
+from .resolve import BitRef, Scope, drives_core, drives_pins, observes_pins
 from .header import Header, read_header
 from .values import DRIVE, EXPECT, READ, WRITE, time_in_seconds, value_bits
 
 __all__ = [
     "OVERRIDABLE_CHECKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
+    "ChainScanPlan", "ResetPlan", "TestItemPlan",
     "WaitPlan", "TestPlan", "ProgramPlan", "check_program", "signal_text",
 ]
 
@@ -69,10 +70,29 @@ class WaitPlan:
 
 
 @dataclass(frozen=True, slots=True)
+class ChainScanPlan:
+    """A raw scan of the whole chain: bit strings most significant first (rightmost = bit 0)."""
+
+    name: str
+    modes: tuple[tuple[str, str], ...]
+    shifted: str
+    expected: str
+    span: SourceSpan | None
+
+
+@dataclass(frozen=True, slots=True)
+class ResetPlan:
+    span: SourceSpan | None
+
+
+TestItemPlan = Union[StepPlan, WaitPlan, ChainScanPlan, ResetPlan]
+
+
+@dataclass(frozen=True, slots=True)
 class TestPlan:
     name: str
     title: str
-    items: tuple[StepPlan | WaitPlan, ...]
+    items: tuple[TestItemPlan, ...]
     overrides: tuple[Override, ...]
     span: SourceSpan | None
 
@@ -151,7 +171,7 @@ class _TestChecker:
         self.header = header
         self.diag = diagnostics
         self.modes: dict[str, str] = {ref: default for ref in scope.devices}
-        self.items: list[StepPlan | WaitPlan] = []
+        self.items: list[TestItemPlan] = []
         self.step_names: dict[str, SourceSpan | None] = {}
         self.mode_keys: dict[tuple[tuple[str, str], ...], tuple[tuple[str, str], ...]] = {}
         self.unused_modes: list[ast.ModeSet] = []
@@ -189,6 +209,10 @@ class _TestChecker:
                 override = self.allow(item)
                 if override is not None:
                     overrides.append(override)
+            elif isinstance(item, ast.ChainScan):
+                self.chain_scan(item)
+            elif isinstance(item, ast.TapReset):
+                self.tap_reset(item)
             else:  # pragma: no cover - the parser builds only the kinds above
                 raise TypeError(f"unexpected test item {item!r}")
         for mode_set in self.unused_modes:
@@ -229,6 +253,57 @@ class _TestChecker:
             name = f"{base}_{count}"
         self.step_names[name] = item.span
         return name
+
+    # ---- raw chain scans and resets ---------------------------------------------------------
+    def chain_scan(self, item: ast.ChainScan) -> None:
+        """A raw data scan in the modes in force; its values must fit its stated length."""
+        name = self.name_step(self.chain_scan_name(), item.span)
+        length = int(item.length) if item.length.isdigit() else 0
+        if length < 1:
+            self.diag.error(f"a chain scan needs a whole number of bits, not {item.length}",
+                            item.length_span, expected="a decimal number of bits, at least 1")
+            return
+        shifted = value_bits(item.shifted, length, WRITE, "the chain scan", self.diag)
+        expected = ("X" * length if item.expected is None else
+                    value_bits(item.expected, length, READ, "the chain scan", self.diag))
+        if shifted is None or expected is None:
+            return
+        chain = sum(self.selected_length(ref, mode) for ref, mode in self.modes.items())
+        if length < chain:
+            self.diag.warning(f"the chain scan shifts {length} bits, but the chain is {chain} bits "
+                              "long in these modes: registers keep part of what they captured",
+                              item.length_span)
+        driving = [ref for ref, mode in self.modes.items()
+                   if drives_pins(self.scope.devices[ref].device, mode) or drives_core(mode)]
+        if driving:
+            self.diag.warning(f"{', '.join(driving)} drive{'s' * (len(driving) == 1)} pins from the "
+                              "boundary register: after this scan they drive what it leaves there",
+                              item.span, hint="scan the chain in SAMPLE, BYPASS or IDCODE, or preload "
+                                              "with a step afterwards")
+        self.items.append(ChainScanPlan(name, self.modes_key(self.modes), shifted, expected, item.span))
+        self.unused_modes.clear()
+
+    def chain_scan_name(self) -> str:
+        name, count = "chain_scan", 1
+        while name in self.step_names:
+            count += 1
+            name = f"chain_scan_{count}"
+        return name
+
+    def selected_length(self, ref: str, mode: str) -> int:
+        device = self.scope.devices[ref].device
+        register = device.selects.get(mode, "BYPASS")
+        if register == "BOUNDARY":
+            return device.boundary_length
+        if register == "DEVICE_ID":
+            return device.registers.get(register, 32)
+        return device.registers.get(register, 1)
+
+    def tap_reset(self, item: ast.TapReset) -> None:
+        """Test-Logic-Reset: IDCODE in force where the device has it, else BYPASS (IEEE 1149.1)."""
+        self.items.append(ResetPlan(item.span))
+        for ref, entry in self.scope.devices.items():
+            self.modes[ref] = "IDCODE" if "IDCODE" in entry.device.instructions else "BYPASS"
 
     # ---- waits and overrides ----------------------------------------------------------------
     def wait_clocks(self, item: ast.Wait) -> int | None:

@@ -227,6 +227,13 @@ class _Formatter:
             self.block_close(item.end_span, indent)
         elif isinstance(item, ast.Table):
             self.table(item, indent)
+        elif isinstance(item, ast.ChainScan):
+            text = f"scan chain {item.length} bits in {describe_value(item.shifted)}"
+            if item.expected is not None:
+                text += f" expect {describe_value(item.expected)}"
+            self.statement(item, indent, text)
+        elif isinstance(item, ast.TapReset):
+            self.statement(item, indent, "reset tap")
         else:
             self.step_item(item, indent)  # wait, read, write, allow read the same at both levels
 

@@ -13,10 +13,12 @@ is the row); being equal, they are shared between rows, which keeps large tables
 from __future__ import annotations
 
 from ..diagnostics import SourceSpan
-from ..ir import Drive, Expect, Program, RegisterRead, RegisterWrite, Step, Test, TestItem, Wait
+from ..ir import (
+    ChainScan, Drive, Expect, Program, RegisterRead, RegisterWrite, Step, TapReset, Test, TestItem, Wait,
+)
 from ..models.board import Board
 from ..collector import collector_paused
-from .checks import BitValue, ProgramPlan, StepPlan, TestPlan, WaitPlan
+from .checks import BitValue, ChainScanPlan, ProgramPlan, ResetPlan, StepPlan, TestPlan, WaitPlan
 from .resolve import Scope
 
 __all__ = ["lower_program"]
@@ -44,6 +46,12 @@ def _lower_test(test: TestPlan, scope: Scope) -> Test:
     for item in test.items:
         if isinstance(item, WaitPlan):
             items.append(Wait(item.clocks, item.modes, item.span))
+            continue
+        if isinstance(item, ChainScanPlan):
+            items.append(ChainScan(item.name, item.modes, item.shifted, item.expected, item.span))
+            continue
+        if isinstance(item, ResetPlan):
+            items.append(TapReset(item.span))
             continue
         changed = _apply(state, item)
         if previous is not None and not changed and previous[0] is item.modes:

@@ -361,6 +361,20 @@ class _ToAst(Transformer):
                          self._statement_span(c), self._tok(c[1]), self._tok(c[2]),
                          using.span if using else None)
 
+    def chain_scan(self, c: list) -> ast.ChainScan:
+        shifted = next(x for x in c if isinstance(x, ast.Literal))
+        expected = next((x.value for x in c if isinstance(x, _ReadExpect)), None)
+        return ast.ChainScan(c[2].value, shifted, expected, self._statement_span(c), self._tok(c[2]))
+
+    def scan_bits(self, c: list) -> ast.Literal:
+        return _literal(c[0].value, self._tok(c[0]))
+
+    def chain_expect(self, c: list) -> _ReadExpect:
+        return _ReadExpect(c[1], c[1].span)
+
+    def tap_reset(self, c: list) -> ast.TapReset:
+        return ast.TapReset(self._between(c[0], c[1]))
+
     def allow(self, c: list) -> ast.Allow:
         return ast.Allow(c[1].value, _unquote(c[2]), self._between(c[0], c[2]), self._tok(c[1]))
 

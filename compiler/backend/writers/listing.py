@@ -176,6 +176,11 @@ def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
         selector[1::2] = window & expected
         lines.extend(compress(labels.compared_lines(segment.device, segment.register, start,
                                                     segment.length), selector))
+    # A raw chain scan longer than the chain: the bits past it are TDI bits passing through.
+    chain_length = max((s.offset + s.length for s in record.segments), default=0)
+    for bit in mask.search(1, chain_length):
+        lines.append(f"      scan bit {bit}: expect {tdo[bit]}  TDI bit {bit - chain_length} "
+                     "through the whole chain")
     return lines
 
 
