@@ -290,6 +290,7 @@ def faults_command(target: str, faults_file: str | None, universe: str, as_json:
         click.echo(json.dumps(report.as_data(), indent=2))
     else:
         click.echo(report.render(details=not summary), nl=False)
+    report_diagnostics(diagnostics)
 
 
 def _write_atomically(path: str, text: str) -> None:

@@ -9,7 +9,7 @@ grades a list of faults or the board's fault universe.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Callable, Sequence
 
@@ -123,8 +123,6 @@ def combined_effect(electrical: ElectricalBoard, faults: Sequence[Fault]) -> Fau
         if effect.tap is not None:
             tap = effect.tap
             if tap.group is not None:
-                from dataclasses import replace
-
                 tap = replace(tap, group=tap.group + len(groups))
         replaced.extend(effect.replaced)
         groups.extend(effect.groups)

@@ -16,10 +16,10 @@ floats; a bidirectional pin there reads its own output).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Iterable, Mapping
 
-from ..diagnostics import Diagnostics, SourceSpan
+from ..diagnostics import Diagnostics
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, STANDARD_CELLS, resolve_capture
 from ..models.device import DRIVER_FUNCTIONS, CellInfo, DeviceModel
@@ -125,7 +125,6 @@ class ElectricalBoard:
     series_of_node: Mapping[int, tuple[tuple[PinRef, PinRef], ...]]  # the series links inside a node
     devices: tuple[DeviceModel, ...]
     refs: tuple[str, ...]
-    span: SourceSpan | None = field(default=None)
 
     def node_of(self, pin: PinRef) -> ElectricalNode:
         return self.nodes[self.node_of_pin[pin]]
@@ -285,7 +284,6 @@ def build_electrical(board: Board, diagnostics: Diagnostics,
         readers_of_pin={pin: tuple(found) for pin, found in readers.items()},
         series=tuple(series), series_of_node={n: tuple(links) for n, links in series_of_node.items()},
         devices=tuple(devices), refs=tuple(e.ref for e in board.chain),
-        span=board.span_of(""),
     )
 
 

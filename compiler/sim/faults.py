@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Sequence
 
-from ..diagnostics import Diagnostics, ScanloomError, SourceSpan, nearest, read_source
+from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, nearest, read_source
 from ..models.board import PinRef
 from ..models.device import DeviceModel
 from .electrical import ElectricalBoard
@@ -339,9 +339,7 @@ def read_faults_file(path: str | Path, electrical: ElectricalBoard) -> tuple[Fau
     return tuple(faults)
 
 
-def _no_faults(file: str):  # type: ignore[no-untyped-def]
-    from ..diagnostics import Diagnostic
-
+def _no_faults(file: str) -> Diagnostic:
     return Diagnostic("error", f"the faults file {file} names no fault", SourceSpan(file, 1, 1),
                       expected="one fault spec per line, e.g. open:U1.PA(3) or short:NET_A,NET_B")
 

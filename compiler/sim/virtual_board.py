@@ -17,7 +17,7 @@ simulated in a few Python steps per scan.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Sequence
 
 from bitarray import bitarray
@@ -101,7 +101,6 @@ class _Tap:
     tck: str
     trst: str
     tdi: LineMap
-    changed: bool = field(default=True)
 
 
 class VirtualBoard:
