@@ -188,7 +188,8 @@ _RESULTS = ("Z", "Z", "PULL1", "WEAK0", "KEEPER")
 
 @st.composite
 def random_boards(draw):  # type: ignore[no-untyped-def]
-    """2-3 devices of 2-4 pins each, random nets, pulls, technologies, a logic part, a pin map."""
+    """2-3 devices of 2-4 pins each, random nets, pulls, technologies, a logic part, a series
+    part, a pin map."""
     devices = []
     pins: list[str] = []
     for d in range(draw(st.integers(2, 3))):
@@ -237,6 +238,19 @@ def random_boards(draw):  # type: ignore[no-untyped-def]
         board = make_board(devices, nets, technology=board.technology, pulls=pulls, parts={"U9": ("A", "B", "Y")})
         board = Board(board.name, board.path, board.technology, board.trst, board.chain, parts, board.nets,
                       board.pulls, board.hold, board.never_drive)
+    free = [name for name, net in board.nets.items() if all(pin.ref != "U9" for pin in net.pins)]
+    if len(free) >= 2 and draw(st.booleans()):
+        # A series resistor joining two nets into one node (a plain connection for logic); not
+        # through the logic part, which would make a loop.
+        a, b = draw(st.permutations(free))[:2]
+        nets = {name: [str(pin) for pin in net.pins] + (["RN1.1"] if name == a else ["RN1.2"] if name == b else [])
+                for name, net in board.nets.items()}
+        with_pack = make_board(devices, nets, technology=board.technology, pulls=pulls,
+                               parts={"RN1": ("1", "2"), **{ref: part.pins for ref, part in board.parts.items()}})
+        parts = dict(board.parts)
+        parts["RN1"] = Part("RN1", ("1", "2"), series=(("1", "2"),))
+        board = Board(with_pack.name, with_pack.path, with_pack.technology, with_pack.trst, with_pack.chain, parts,
+                      with_pack.nets, with_pack.pulls, with_pack.hold, with_pack.never_drive)
     # A leaded pin map over every port, TAP pins included, in random order: adjacent shorts.
     from dataclasses import replace
 
