@@ -136,6 +136,7 @@ class VirtualBoard:
                          if cone else None)
         self.dirty = True
         self.contentions: list[Contention] = []
+        self._fighting: set[int] = set()
         self.tms = _big(cycles.tms)
         self.tdi = _big(cycles.tdi)
         count = len(self.devices)
@@ -167,8 +168,10 @@ class VirtualBoard:
         if not self.dirty:
             return
         self.dirty = False
-        for group in self.nets.resolve():
-            self._contention(group)
+        fighting = set(self.nets.resolve())
+        for group in sorted(fighting - self._fighting):
+            self._contention(group)  # reported when a fight starts, not at every update it lasts
+        self._fighting = fighting
         if self.effect is not None and self.effect.tap is not None:
             self._update_taps()
 
