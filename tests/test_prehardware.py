@@ -252,3 +252,21 @@ test t "expects on a bypassed device" {
     check_source_program(path, diagnostics)
     # The language's own warning for the same expectation gives way to the error.
     assert [d.severity for d in diagnostics.items if d.span and d.span.line == 8] == ["error"]
+
+
+def test_expectation_on_a_floating_net_warns(tmp_path: Path) -> None:
+    # Both ends of DATA0 are in EXTEST with their outputs disabled and the net has no pull: it
+    # floats, and a CMOS input reads an undefined value (common practice).
+    path = write_program(tmp_path, """
+test t "reads a released bus" {
+    U1, U4 EXTEST
+    step s {
+        drive WDOG_DIS = 1
+        expect DATA0 = 1
+    }
+}
+""")
+    found = only(findings_of(path), "floating")
+    assert re.fullmatch(r"net DATA0 floats in step s \(nothing drives it\), yet 1 is expected: a CMOS "
+                        r"receiver reads an undefined value", found[0].message)
+    assert found[0].span.line == 8

@@ -14,20 +14,20 @@ The result is the mapping `schedule(program, board, computed)` takes:
 
 from __future__ import annotations
 
-from typing import Mapping
+from typing import Iterator, Mapping
 
 from bitarray import frozenbitarray
 
 from ..backend.images import PRELOAD_KINDS, build_image, device_tables, mode_kind, selected_register
 from ..diagnostics import Diagnostics
-from ..ir import COMPUTED, Program, Step
+from ..ir import COMPUTED, Program, Step, Test
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, instruction_class, resolve_capture
 from ..sim.electrical import ElectricalBoard, build_electrical
 from ..sim.fault_effects import good_groups
 from ..sim.resolve import GroupSolver, Level, PinDrive, read_level, scan_pin_drive
 
-__all__ = ["compute_expectations", "step_levels", "fill_computed"]
+__all__ = ["compute_expectations", "step_levels", "iter_step_levels", "fill_computed"]
 
 Computed = dict[tuple[str, str, str], str]
 
@@ -140,6 +140,17 @@ def compute_expectations(program: Program, board: Board,
                 computed[(test.name, step.name, expect.target)] = _value(
                     board, electrical, levels, modes, images, expect.target, expect.is_pin)
     return computed
+
+
+def iter_step_levels(program: Program, board: Board, electrical: ElectricalBoard | None = None
+                     ) -> Iterator[tuple[Test, Step, list[Level]]]:
+    """Every step in program order with its fault-free node levels (by node index)."""
+    if electrical is None:
+        electrical = build_electrical(board, Diagnostics())
+    stepper = _StepBoard(board, electrical)
+    for test in program.tests:
+        for step in test.steps:
+            yield test, step, stepper.levels(step)[0]
 
 
 def step_levels(program: Program, board: Board, test: str, step: str,

@@ -17,6 +17,7 @@ from ..ir import Program
 from ..models.board import Board
 from ..safety_checks import CHECKS, Finding
 from .drive_hazards import check_bypass_expectations, check_drive_hazards
+from .floating import check_floating_expectations
 from .short_fights import check_short_fights
 from .sequencing import check_compliance, check_preload, check_self_test_idle, check_tck
 
@@ -43,6 +44,7 @@ def check_program(program: Program, board: Board, scan: ScanProgram | None = Non
     findings += check_self_test_idle(program, board)
     findings += check_drive_hazards(program, board)
     findings += check_bypass_expectations(program, board)
+    findings += check_floating_expectations(program, board)
     if scan is not None:
         findings += check_preload(scan)
         if cycles is not None:
