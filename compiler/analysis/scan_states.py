@@ -150,7 +150,11 @@ def scan_states(program: ScanProgram, cycles: CycleStream, board: Board) -> Scan
                                  "whose length the chain map does not give")
             layout.append((d, register, offset, length))
             offset += length
-        if offset != record.length:
+        # A raw chain scan may be longer than the chain (its last bits pass through) or
+        # shorter (registers keep part of what they captured): register bit `at + i` then
+        # holds the TDI bit `at + i + extra`, unknown where that is before the scan's start.
+        extra = record.length - offset
+        if extra and record.kind == IR_SCAN:
             raise _error(f"record {index} shifts {record.length} bits, but the registers its "
                          f"instructions select hold {offset}")
         if record.kind == IR_SCAN:
@@ -161,7 +165,7 @@ def scan_states(program: ScanProgram, cycles: CycleStream, board: Board) -> Scan
             captures.append(CaptureEvent(index, state, start - 1, start, tuple(layout)))
             for d, register, at, length in layout:
                 if register == "BOUNDARY":
-                    update[d] = bits[at:at + length]
+                    update[d] = bits[at + extra:at + extra + length] if at + extra >= 0 else None
         note_state()
     states = len(history_instr[0])
     capture_of_state = {event.state: event for event in captures}
@@ -193,8 +197,9 @@ def scan_states(program: ScanProgram, cycles: CycleStream, board: Board) -> Scan
                 classes[cls] |= 1 << event.state
                 record = program.records[event.record]
                 row = event.state * length
-                compare[row:row + length] = _little(record.mask)[at:at + size]
-                expected[row:row + length] = _little(record.tdo)[at:at + size]
+                shown = max(0, min(size, record.length - at))  # a short scan shows only part
+                compare[row:row + shown] = _little(record.mask)[at:at + shown]
+                expected[row:row + shown] = _little(record.tdo)[at:at + shown]
         devices.append(DeviceStates(device.ref, d, tuple(history_instr[d]), drive, known, rows,
                                     classes, compare, expected, length))
     return ScanStates(states, tuple(devices), tuple(captures), capture_of_state)
