@@ -19,9 +19,19 @@ EXIT_BAD_INPUT = 2
 EXIT_CODES_HELP = "Exit codes: 0 ok, 1 check or test failure, 2 bad input or usage."
 
 
-def report_error(error: ScanloomError) -> int:
-    """Print a stage's diagnostics to stderr; bad input always exits 2."""
-    click.echo(error.render(), err=True)
+def report_error(error: ScanloomError, *, notes: bool = False) -> int:
+    """Print a stage's errors and warnings to stderr, notes only when asked; bad input exits 2.
+
+    A board whose fifth BSDL file is broken should show that error, not first the readers'
+    notes on the four good ones.
+    """
+    from .diagnostics import render_all
+
+    shown = [d for d in error.diagnostics if notes or d.severity != "note"] or list(error.diagnostics)
+    click.echo(render_all(shown, error.sources), err=True)
+    hidden = len(error.diagnostics) - len(shown)
+    if hidden:
+        click.echo(f"({hidden} note{'s' * (hidden != 1)} not shown)", err=True)
     return EXIT_BAD_INPUT
 
 
@@ -46,7 +56,7 @@ def inspect_command(board: str, as_json: bool, notes: bool) -> None:
     try:
         model = load_board(board, diagnostics)
     except ScanloomError as error:
-        sys.exit(report_error(error))
+        sys.exit(report_error(error, notes=notes))
     summary = board_summary(model)
     if as_json:
         click.echo(json.dumps(summary, indent=2))
@@ -124,9 +134,12 @@ def compile_command(program: str, out_dir: str, formats: str, board: str | None,
     from .lang.frontend import UnreadableInput
     from .pipeline import CompilerBug, compile_program
 
+    names = [name.strip() for name in formats.split(",") if name.strip()]
+    if not names:
+        raise click.BadParameter("name at least one of json, cycles, vcd, listing", param_hint="--format")
     diagnostics = Diagnostics(strict=strict)
     try:
-        wanted = check_formats(f.strip() for f in formats.split(",") if f.strip())
+        wanted = check_formats(names)
         result = compile_program(program, out_dir, wanted, diagnostics, board)
     except UnreadableInput as error:
         sys.exit(report_error(error))
@@ -153,11 +166,14 @@ def compile_command(program: str, out_dir: str, formats: str, board: str | None,
 @click.argument("shift_file", type=click.Path(dir_okay=False))
 @click.option("--limit", default=50, show_default=True, type=click.IntRange(min=0),
               help="Show at most this many mismatches (0 shows all).")
-def verify_command(shift_file: str, limit: int) -> None:
+@click.option("--allow", "allowed", multiple=True, metavar="CHECK",
+              help="Accept a named sequencing hazard (e.g. no_preload) in this file.")
+def verify_command(shift_file: str, limit: int, allowed: tuple[str, ...]) -> None:
     """Replay SHIFT_FILE (DIR/<stem>.json) on an independent model of every device's TAP and registers.
 
+    Also checks the records' sequencing (no device enters EXTEST or CLAMP without a preload).
     Exit 0 when every record does what it says, 1 on a mismatch (a compiler bug or a damaged
-    file), 2 when the file cannot be read or is not a scanloom shift file.
+    file) or a sequencing hazard, 2 when the file cannot be read or is not a scanloom shift file.
     """
     from .backend.shiftfile import read_shift_file
     from .sim.replay import replay
@@ -167,6 +183,20 @@ def verify_command(shift_file: str, limit: int) -> None:
     except ScanloomError as error:
         sys.exit(report_error(error))
     report = replay(program, cycles)
+    from .analysis.prehardware import check_records
+
+    from .safety_checks import CHECKS
+
+    for name in allowed:
+        if name not in CHECKS:
+            from .diagnostics import Diagnostic, nearest
+
+            sys.exit(report_error(ScanloomError([Diagnostic(
+                "error", f"unknown check {name!r} in --allow", expected=", ".join(CHECKS),
+                suggestions=nearest(name, CHECKS))])))
+    hazards = [f for f in check_records(program).findings if f.check not in allowed]
+    for finding in hazards:
+        click.echo(f"{shift_file}: error: [{finding.check}] {finding.message}", err=True)
     if not report.ok:
         shown = report.mismatches if limit == 0 else report.mismatches[:limit]
         for mismatch in shown:
@@ -177,6 +207,9 @@ def verify_command(shift_file: str, limit: int) -> None:
         click.echo(f"{shift_file}: {report.summary()}", err=True)
         sys.exit(EXIT_FAIL)
     click.echo(f"{shift_file}: {report.summary()}")
+    if hazards:
+        click.echo(f"{shift_file}: {len(hazards)} sequencing hazard(s): not safe to run", err=True)
+        sys.exit(EXIT_FAIL)
 
 
 @main.command("fmt", epilog=EXIT_CODES_HELP)
@@ -186,18 +219,27 @@ def verify_command(shift_file: str, limit: int) -> None:
 @click.option("--write", is_flag=True, help="Rewrite PROGRAM in place.")
 def fmt_command(program: str, check_only: bool, write: bool) -> None:
     """Print PROGRAM (.loom) in canonical form (comments kept), or check or rewrite it."""
-    from .diagnostics import Diagnostics, read_source
+    from pathlib import Path
+
+    from .backend.writers.atomic import write_atomically
+    from .diagnostics import Diagnostic, read_source
+    from .file_kinds import PROGRAM, misplaced_kind_error
     from .lang.fmt import format_text
+
+    if check_only and write:
+        raise click.UsageError("--check and --write exclude each other: --check changes nothing")
 
     try:
         text = read_source(program)
     except OSError as error:
-        diagnostics = Diagnostics()
-        diagnostics.error(f"cannot read program {program}: {error.strerror or error}")
-        sys.exit(report_error(ScanloomError(diagnostics.items)))
+        sys.exit(report_error(ScanloomError([Diagnostic(
+            "error", f"cannot read program {program}: {error.strerror or error}")])))
     try:
         formatted = format_text(text, program)
     except ScanloomError as error:
+        misplaced = misplaced_kind_error(program, text, PROGRAM)
+        if misplaced is not None:
+            sys.exit(report_error(ScanloomError([misplaced], {program: text})))
         click.echo(error.render(), err=True)
         sys.exit(EXIT_FAIL)
     if check_only:
@@ -207,7 +249,12 @@ def fmt_command(program: str, check_only: bool, write: bool) -> None:
         return
     if write:
         if formatted != text:
-            _write_atomically(program, formatted)
+            try:
+                write_atomically(Path(program), formatted)
+            except OSError as error:
+                sys.exit(report_error(ScanloomError([Diagnostic(
+                    "error", f"cannot write program {program}: {error.strerror or error}",
+                    expected="a file in a folder scanloom may create files in")])))
         return
     click.echo(formatted, nl=False)
 
@@ -291,23 +338,6 @@ def faults_command(target: str, faults_file: str | None, universe: str, as_json:
     else:
         click.echo(report.render(details=not summary), nl=False)
     report_diagnostics(diagnostics)
-
-
-def _write_atomically(path: str, text: str) -> None:
-    """Write through a temporary file in the same folder, then rename over the original."""
-    import os
-    import tempfile
-
-    folder = os.path.dirname(os.path.abspath(path))
-    handle, temporary = tempfile.mkstemp(dir=folder, prefix=".fmt-", suffix=".loom")
-    try:
-        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
-            stream.write(text)
-        os.replace(temporary, path)
-    except BaseException:
-        if os.path.exists(temporary):
-            os.unlink(temporary)
-        raise
 
 
 if __name__ == "__main__":  # pragma: no cover

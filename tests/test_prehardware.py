@@ -270,3 +270,26 @@ test t "reads a released bus" {
     assert re.fullmatch(r"net DATA0 floats in step s \(nothing drives it\), yet 1 is expected: a CMOS "
                         r"receiver reads an undefined value", found[0].message)
     assert found[0].span.line == 8
+
+
+def test_verify_refuses_a_shift_file_without_preload(tmp_path: Path) -> None:
+    # A self-consistent shift file from elsewhere (records and cycles agree) that enters EXTEST
+    # without the preload scan: the replay has nothing to object to, the sequencing check does.
+    import subprocess
+    import sys
+
+    from scanloom.backend.cycles import lay_out_cycles
+    from scanloom.backend.writers import write_outputs
+
+    diagnostics = Diagnostics()
+    program, board = load_program(DEMO / "valve_nets.loom", diagnostics)
+    scan = schedule(program, board)
+    kept = tuple(r for r in scan.records if not (r.kind == DR_SCAN and r.purpose == "preload"))
+    edited = ScanProgram(scan.source, scan.board, scan.tck_hz, scan.chain, kept)
+    write_outputs(edited, lay_out_cycles(edited), tmp_path, "edited", {"json"})
+    result = subprocess.run([sys.executable, "-m", "scanloom.cli", "verify", str(tmp_path / "edited.json")],
+                            capture_output=True, text=True, timeout=120)
+    assert result.returncode == 1, result.stdout + result.stderr
+    assert re.search(r"edited\.json: error: \[no_preload\] record \d+ \(IR scan\): U1 enters EXTEST but "
+                     r"its boundary register was not loaded since Test-Logic-Reset", result.stderr)
+    assert "Traceback" not in result.stderr
