@@ -52,9 +52,12 @@ def inspect_command(board: str, as_json: bool, notes: bool) -> None:
     from .analysis.board_summary import board_summary, render_board_summary
     from .models.board_loader import load_board
 
+    from .pipeline import validate_board_logic
+
     diagnostics = Diagnostics()
     try:
         model = load_board(board, diagnostics)
+        validate_board_logic(model, diagnostics)
     except ScanloomError as error:
         sys.exit(report_error(error, notes=notes))
     summary = board_summary(model)
@@ -111,7 +114,8 @@ def check_command(program: str, board: str | None, strict: bool, dump_ir: bool) 
     if not dump_ir:
         steps = sum(len(test.steps) for test in checked.tests)
         warnings = len(diagnostics.warnings)
-        click.echo(f"{program}: {len(checked.tests)} tests, {steps} steps, no errors"
+        tests = len(checked.tests)
+        click.echo(f"{program}: {tests} test{'s' * (tests != 1)}, {steps} step{'s' * (steps != 1)}, no errors"
                    + (f", {warnings} warning{'s' * (warnings != 1)}" if warnings else ""))
 
 
@@ -202,7 +206,8 @@ def verify_command(shift_file: str, limit: int, allowed: tuple[str, ...]) -> Non
         for mismatch in shown:
             click.echo(f"{shift_file}: {mismatch}", err=True)
         if len(shown) < len(report.mismatches):
-            click.echo(f"{shift_file}: ... and {len(report.mismatches) - len(shown)} more mismatches "
+            more = len(report.mismatches) - len(shown)
+            click.echo(f"{shift_file}: ... and {more} more mismatch{'es' * (more != 1)} "
                        f"(--limit 0 shows all)", err=True)
         click.echo(f"{shift_file}: {report.summary()}", err=True)
         sys.exit(EXIT_FAIL)

@@ -21,7 +21,8 @@ from .lang.frontend import load_program
 from .models.board import Board
 from .sim.replay import ReplayReport, replay
 
-__all__ = ["CheckedProgram", "CompileResult", "CompilerBug", "check_source_program", "compile_program"]
+__all__ = ["CheckedProgram", "CompileResult", "CompilerBug", "check_source_program", "compile_program",
+           "validate_board_logic"]
 
 
 class CompilerBug(ScanloomError):
@@ -54,9 +55,21 @@ def _computed_expectations(program: Program, board: Board) -> dict[tuple[str, st
     return dict(compute_expectations(program, board))
 
 
+def validate_board_logic(board: Board, diagnostics: Diagnostics) -> None:
+    """The board's logic equations parse and form no loop (an unreadable board otherwise)."""
+    from .lang.frontend import UnreadableInput
+    from .sim.electrical import build_electrical
+
+    try:
+        build_electrical(board, diagnostics)
+    except ScanloomError as error:
+        raise UnreadableInput(error.diagnostics, error.sources) from None
+
+
 def _front_to_cycles(path: str | Path, diagnostics: Diagnostics, board_override: str | Path | None,
                      computed: bool) -> tuple[CheckedProgram, ScanProgram, CycleStream]:
     program, board = load_program(path, diagnostics, board_override)
+    validate_board_logic(board, diagnostics)
     values = _computed_expectations(program, board) if computed else {}
     scan = schedule(program, board, values)
     cycles = lay_out_cycles(scan)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -66,3 +67,19 @@ def test_version_and_help() -> None:
     assert run("--version").stdout.startswith("scanloom, version ")
     result = run("inspect", "--help")
     assert result.returncode == 0 and "Exit codes: 0 ok" in result.stdout
+
+
+def test_inspect_reports_a_bad_logic_equation(tmp_path: Path) -> None:
+    import shutil
+
+    board_dir = tmp_path / "board"
+    shutil.copytree(BOARD.parent, board_dir)
+    yaml_path = board_dir / "irrigation.yaml"
+    text = yaml_path.read_text()
+    assert '"(D0 ^ D1) ^ (D2 ^ D3)"' in text
+    yaml_path.write_text(text.replace('"(D0 ^ D1) ^ (D2 ^ D3)"', '"(D0 ^ D1) ^ (D2 ^ DD3)"'))
+    result = run("inspect", str(yaml_path))
+    assert result.returncode == 2
+    assert re.search(r"irrigation\.yaml:\d+:\d+: error: 'DD3' in the logic of U11\.ODD is not a pin of "
+                     r"part 'U11'", result.stderr)
+    assert "did you mean: D3" in result.stderr and "Traceback" not in result.stderr
