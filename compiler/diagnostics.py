@@ -170,6 +170,26 @@ def _source_line(span: SourceSpan, sources: dict[str, str]) -> str | None:
     return None
 
 
+_SHOWN_WIDTH = 120  # a longer source line is shown as this many characters around the caret
+
+
+def _caret_lines(line: str, span: SourceSpan) -> list[str]:
+    """The source line (control characters as `?`, long lines cut) and its caret line."""
+    shown = "".join(c if c.isprintable() else " " if c == "\t" else "?" for c in line)
+    column = span.column
+    if len(shown) > _SHOWN_WIDTH:
+        start = max(0, min(column - 1 - _SHOWN_WIDTH // 2, len(shown) - _SHOWN_WIDTH))
+        cut = shown[start:start + _SHOWN_WIDTH]
+        head = "..." if start else ""
+        shown = head + cut + ("..." if start + _SHOWN_WIDTH < len(shown) else "")
+        column = column - start + len(head)
+    width = 1
+    if span.end_line == span.line and span.end_column > span.column:
+        width = span.end_column - span.column
+    width = max(1, min(width, len(shown) - column + 1))
+    return [f"    {shown}", "    " + " " * (column - 1) + "^" * width]
+
+
 def render(diagnostic: Diagnostic, sources: dict[str, str] | None = None) -> str:
     """Render one diagnostic with its source line and a caret span."""
     sources = sources if sources is not None else {}
@@ -179,13 +199,7 @@ def render(diagnostic: Diagnostic, sources: dict[str, str] | None = None) -> str
     if span is not None:
         line = _source_line(span, sources)
         if line is not None:
-            shown = line.replace("\t", " ")
-            width = 1
-            if span.end_line == span.line and span.end_column > span.column:
-                width = span.end_column - span.column
-            width = max(1, min(width, max(1, len(shown) - span.column + 1)))
-            out.append(f"    {shown}")
-            out.append("    " + " " * (span.column - 1) + "^" * width)
+            out.extend(_caret_lines(line, span))
     if diagnostic.expected:
         out.append(f"  expected: {diagnostic.expected}")
     if diagnostic.suggestions:

@@ -19,6 +19,7 @@ from typing import Any, Callable, Mapping, NoReturn, Sequence
 from bitarray import bitarray
 
 from ..diagnostics import Diagnostic, ScanloomError, SourceSpan, nearest, read_source
+from ..file_kinds import SHIFT_FILE, misplaced_kind_error
 from .cycle_stream import CycleStream, tap_states_from_tms
 from .hexbits import hex_digits, hex_to_bits
 from .records import (
@@ -383,8 +384,12 @@ def read_shift_file(path: str | Path) -> tuple[ScanProgram, CycleStream]:
     try:
         data = json.loads(text)
     except json.JSONDecodeError as error:
+        misplaced = misplaced_kind_error(origin, text, SHIFT_FILE)
+        if misplaced is not None:
+            raise ScanloomError([misplaced], {origin: text}) from None
         span = SourceSpan(origin, error.lineno, error.colno, error.lineno, error.colno + 1)
-        raise ScanloomError([Diagnostic("error", f"not valid JSON: {error.msg}", span,
+        reason = error.msg.removesuffix(" at").removesuffix(" starting")  # the caret shows where
+        raise ScanloomError([Diagnostic("error", f"not valid JSON: {reason}", span,
                                         expected="a shift file written by scanloom compile")],
                             {origin: text}) from None
     except RecursionError:

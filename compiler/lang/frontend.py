@@ -12,6 +12,7 @@ import os
 from pathlib import Path
 
 from ..diagnostics import Diagnostics, ScanloomError, read_source
+from ..file_kinds import PROGRAM, misplaced_kind_error
 from ..ir import Program, dump_ir
 from ..models.board import Board
 from .checks import check_program
@@ -44,6 +45,10 @@ def load_program(path: str | Path, diagnostics: Diagnostics,
         diagnostics.error(f"cannot read program {file}: {error.strerror or error}")
         raise UnreadableInput(diagnostics.sorted(), diagnostics.sources) from None
     root = parse_source(text, file, diagnostics)
+    if diagnostics.has_errors():
+        misplaced = misplaced_kind_error(file, text, PROGRAM)
+        if misplaced is not None:
+            raise UnreadableInput([misplaced], {file: text})
     diagnostics.raise_if_errors()
     assert root is not None
     files = expand_includes(root, path, diagnostics)

@@ -10,6 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest, read_source
+from ..file_kinds import BOARD, misplaced_kind_error
 from .board import TECHNOLOGIES, Board, ChainDevice, Net, Part, PinRef
 from .device import DeviceModel
 from .yaml_nodes import PositionedYaml, load_positioned_yaml
@@ -38,7 +39,15 @@ def load_board(path: str | Path, diagnostics: Diagnostics) -> Board:
 
 def parse_board(text: str, file: str, diagnostics: Diagnostics) -> Board:
     diagnostics.add_source(file, text)
-    doc = load_positioned_yaml(text, file, diagnostics)
+    yaml_diagnostics = Diagnostics(sources=diagnostics.sources)
+    doc = load_positioned_yaml(text, file, yaml_diagnostics)
+    misplaced = None
+    if doc is None or not isinstance(doc.data, dict) or "chain" not in doc.data or "schema" in doc.data:
+        misplaced = misplaced_kind_error(file, text, BOARD)
+    if misplaced is not None:
+        diagnostics.report(misplaced)
+    else:
+        diagnostics.extend(yaml_diagnostics.items)
     diagnostics.raise_if_errors()
     assert doc is not None
     board = _BoardBuilder(doc, file, diagnostics).build()

@@ -1,0 +1,357 @@
+"""Bad input on every finished command, through `python -m scanloom.cli` in a subprocess.
+
+The contract (README, "Exit codes"): 0 ok, 1 a check or test failed (a program with errors, a
+replay mismatch), 2 bad input or usage (a file that cannot be read, a malformed or misplaced
+board, BSDL or shift file, a wrong option). Every error names `file:line:col` where the input
+has a position, shows that line with a caret under the place, and no Python traceback reaches
+the user.
+"""
+
+from __future__ import annotations
+
+import json
+import random
+import re
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+EXAMPLES = Path(__file__).resolve().parents[1] / "examples" / "irrigation"
+
+OK, FAILED, BAD_INPUT = 0, 1, 2  # README, "Exit codes"
+
+
+def run(cwd: Path, *args: str) -> subprocess.CompletedProcess[str]:
+    done = subprocess.run([sys.executable, "-m", "scanloom.cli", *args], cwd=cwd,
+                          capture_output=True, text=True, check=False)
+    assert "Traceback" not in done.stderr, done.stderr
+    return done
+
+
+def expect(done: subprocess.CompletedProcess[str], code: int, pattern: str) -> str:
+    """The exit code is `code` and stderr has a line matching `pattern` (anchored at the start)."""
+    assert done.returncode == code, (done.returncode, done.stdout, done.stderr)
+    assert re.search(pattern, done.stderr, re.MULTILINE), done.stderr
+    return done.stderr
+
+
+def caret_under(stderr: str, source_line: str, marked: str) -> None:
+    """`source_line` is shown, and the caret line under it starts at the text `marked`."""
+    lines = stderr.splitlines()
+    for shown, carets in zip(lines, lines[1:]):
+        if shown == "    " + source_line:
+            column = source_line.index(marked)
+            assert re.fullmatch(r" {%d}\^+" % (4 + column), carets), (shown, carets)
+            return
+    raise AssertionError(f"source line {source_line!r} not shown in:\n{stderr}")
+
+
+@pytest.fixture(scope="module")
+def board_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A copy of the demo board folder with one compiled shift file in `out/`."""
+    target = tmp_path_factory.mktemp("errors") / "irrigation"
+    shutil.copytree(EXAMPLES, target)
+    done = run(target, "compile", "valve_nets.loom", "--out", "out", "--format", "json")
+    assert done.returncode == OK, done.stderr
+    return target
+
+
+@pytest.fixture
+def work(board_dir: Path, tmp_path: Path) -> Path:
+    """A scratch folder beside the demo board: `../irrigation` reaches its files."""
+    scratch = board_dir.parent / tmp_path.name
+    scratch.mkdir()
+    return scratch
+
+
+def garbage(path: Path) -> Path:
+    rng = random.Random(7)
+    path.write_bytes(bytes(rng.randrange(256) for _ in range(600)))
+    return path
+
+
+# ---------------------------------------------------------------------------- missing and folders
+
+@pytest.mark.parametrize("command", [("inspect",), ("check",), ("fmt",), ("compile", "--out", "o"),
+                                     ("verify",)])
+def test_a_missing_file_exits_2(work: Path, command: tuple[str, ...]) -> None:
+    done = run(work, *command, "absent.file")
+    expect(done, BAD_INPUT, r"^error: cannot read .*absent\.file: No such file or directory$")
+
+
+@pytest.mark.parametrize("command", [("inspect",), ("check",), ("fmt",), ("compile", "--out", "o"),
+                                     ("verify",)])
+def test_a_folder_instead_of_a_file_is_a_usage_error(work: Path, command: tuple[str, ...]) -> None:
+    (work / "folder").mkdir()
+    done = run(work, *command, "folder")
+    expect(done, BAD_INPUT, r"^Error: Invalid value for '.*': File 'folder' is a directory\.$")
+
+
+# ---------------------------------------------------------------------------- inspect
+
+def test_inspect_an_empty_board_file(work: Path) -> None:
+    (work / "empty.yaml").write_text("")
+    done = run(work, "inspect", "empty.yaml")
+    expect(done, BAD_INPUT, r"^empty\.yaml:1:1: error: the board file must be a YAML mapping$")
+
+
+def test_inspect_binary_garbage_points_at_the_first_control_character(work: Path) -> None:
+    garbage(work / "noise.yaml")
+    done = run(work, "inspect", "noise.yaml")
+    stderr = expect(done, BAD_INPUT, r"^noise\.yaml:1:\d+: error: this looks like binary data, "
+                                     r"not a board file$")
+    # Control characters are shown as `?`, so the terminal is not disturbed.
+    assert not re.search("[\x00-\x08\x0b-\x1f\x7f]", stderr)
+
+
+def test_inspect_a_bsdl_file_says_what_it_is(board_dir: Path) -> None:
+    done = run(board_dir, "inspect", "bsdl/rc4_ctrl.bsd")
+    stderr = expect(done, BAD_INPUT, r"^bsdl/rc4_ctrl\.bsd:23:1: error: this looks like a BSDL file, "
+                                     r"not a board file$")
+    caret_under(stderr, "entity RC4_CTRL is", "entity")
+    assert "not valid YAML" not in stderr
+
+
+def test_inspect_a_program_or_a_shift_file(board_dir: Path) -> None:
+    program = run(board_dir, "inspect", "valve_nets.loom")
+    expect(program, BAD_INPUT, r"^valve_nets\.loom:4:1: error: this looks like a test program, "
+                               r"not a board file$")
+    shifts = run(board_dir, "inspect", "out/valve_nets.json")
+    expect(shifts, BAD_INPUT, r"^out/valve_nets\.json:1:1: error: this looks like a shift file, "
+                              r"not a board file$")
+
+
+def _board_with(board_dir: Path, name: str, old: str, new: str) -> str:
+    text = (board_dir / "irrigation.yaml").read_text()
+    assert old in text
+    (board_dir / name).write_text(text.replace(old, new))
+    return name
+
+
+def test_a_broken_bsdl_file_comes_first_and_notes_are_counted(board_dir: Path) -> None:
+    (board_dir / "bsdl" / "broken.bsd").write_text("entity BROKEN is\n  generic (\nend BROKEN;\n")
+    name = _board_with(board_dir, "broken_bsdl.yaml", "bsdl/rc4_link.bsd", "bsdl/broken.bsd")
+    done = run(board_dir, "inspect", name)
+    stderr = expect(done, BAD_INPUT, r"^bsdl/broken\.bsd:\d+:\d+: error: ")
+    assert stderr.startswith("bsdl/broken.bsd:"), stderr
+    assert ": note: " not in stderr
+    assert re.search(r"^\(\d+ notes? not shown\)$", stderr, re.MULTILINE)
+    with_notes = run(board_dir, "inspect", name, "--notes")
+    assert ": note: " in with_notes.stderr
+
+
+def test_inspect_an_unknown_option(board_dir: Path) -> None:
+    done = run(board_dir, "inspect", "irrigation.yaml", "--jsn")
+    expect(done, BAD_INPUT, r"^Error: No such option '--jsn'\. Did you mean '--json'\?$")
+
+
+# ---------------------------------------------------------------------------- check
+
+def test_check_an_empty_program(work: Path) -> None:
+    (work / "empty.loom").write_text("")
+    done = run(work, "check", "empty.loom")
+    expect(done, FAILED, r"^empty\.loom:1:1: error: the program names no board$")
+
+
+def test_check_binary_garbage_is_bad_input(work: Path) -> None:
+    garbage(work / "noise.loom")
+    done = run(work, "check", "noise.loom")
+    stderr = expect(done, BAD_INPUT, r"^noise\.loom:1:\d+: error: this looks like binary data, "
+                                     r"not a test program$")
+    assert "syntax error" not in stderr
+
+
+@pytest.mark.parametrize("path, line, shown, kind", [
+    ("bsdl/rc4_ctrl.bsd", 23, "entity RC4_CTRL is", "a BSDL file"),
+    ("irrigation.yaml", 15, "chain:                          # TDI -> TDO", "a board file"),
+    ("out/valve_nets.json", 1, "{", "a shift file"),
+])
+def test_check_another_kind_of_file(board_dir: Path, path: str, line: int, shown: str, kind: str) -> None:
+    done = run(board_dir, "check", path)
+    stderr = expect(done, BAD_INPUT, rf"^{re.escape(path)}:{line}:1: error: this looks like {kind}, "
+                                     r"not a test program$")
+    caret_under(stderr, shown, shown[0])
+    assert "syntax error" not in stderr
+
+
+def test_check_with_a_bsdl_file_as_board(board_dir: Path) -> None:
+    done = run(board_dir, "check", "valve_nets.loom", "--board", "bsdl/rc4_ctrl.bsd")
+    expect(done, BAD_INPUT, r"^bsdl/rc4_ctrl\.bsd:23:1: error: this looks like a BSDL file, "
+                            r"not a board file$")
+
+
+def test_a_program_naming_a_bsdl_file_as_its_board(board_dir: Path) -> None:
+    (board_dir / "bsdl_board.loom").write_text('board "bsdl/rc4_ctrl.bsd"\n')
+    done = run(board_dir, "check", "bsdl_board.loom")
+    expect(done, BAD_INPUT, r"^bsdl/rc4_ctrl\.bsd:23:1: error: this looks like a BSDL file, "
+                            r"not a board file$")
+
+
+def test_a_program_naming_a_missing_board(work: Path) -> None:
+    (work / "lost.loom").write_text('board "nowhere.yaml"\n')
+    done = run(work, "check", "lost.loom")
+    stderr = expect(done, BAD_INPUT, r"^lost\.loom:1:1: error: cannot read the board file nowhere\.yaml$")
+    caret_under(stderr, 'board "nowhere.yaml"', "board")
+
+
+def test_a_syntax_error_at_the_end_of_the_file_points_at_the_last_line(board_dir: Path) -> None:
+    (board_dir / "cut.loom").write_text('board "irrigation.yaml"\ntest t "t" {\n    step s {\n'
+                                        "        drive MUX_SEL = 1")
+    done = run(board_dir, "check", "cut.loom")
+    stderr = expect(done, FAILED, r"^cut\.loom:4:26: error: syntax error: the program ends too early$")
+    assert re.search(r"^  expected: .*'}'$", stderr, re.MULTILINE)
+
+
+def test_unknown_names_come_with_the_nearest_ones(board_dir: Path) -> None:
+    (board_dir / "names.loom").write_text(
+        'board "irrigation.yaml"\ntest t "t" {\n    U9 EXTEST\n    U1 EXTST\n    step s {\n'
+        "        drive VALVE_D9 = 1\n    }\n}\n")
+    done = run(board_dir, "check", "names.loom")
+    stderr = expect(done, FAILED, r"^names\.loom:3:5: error: unknown device U9$")
+    expect(done, FAILED, r"^names\.loom:4:8: error: U1 \(RC4_CTRL\) has no instruction EXTST$")
+    expect(done, FAILED, r"^names\.loom:6:15: error: unknown net or group VALVE_D9$")
+    caret_under(stderr, "    U1 EXTST", "EXTST")
+    assert re.search(r"^  did you mean: EXTEST\?$", stderr, re.MULTILINE)
+
+
+def test_a_very_long_line_is_cut_around_the_caret(board_dir: Path) -> None:
+    (board_dir / "wide.loom").write_text('board "irrigation.yaml"\n' + " " * 5000 + "test ?\n")
+    done = run(board_dir, "check", "wide.loom")
+    stderr = expect(done, FAILED, r"^wide\.loom:2:5006: error: syntax error: unexpected '\?'$")
+    shown, carets = stderr.splitlines()[1:3]
+    assert shown.startswith("    ...") and len(shown) < 140
+    assert re.fullmatch(r" +\^", carets) and shown[len(carets) - 1] == "?"
+
+
+# ---------------------------------------------------------------------------- fmt
+
+def test_fmt_check_and_write_together_is_a_usage_error(board_dir: Path) -> None:
+    done = run(board_dir, "fmt", "valve_nets.loom", "--check", "--write")
+    expect(done, BAD_INPUT, r"^Error: --check and --write exclude each other")
+
+
+def test_fmt_a_bsdl_file(board_dir: Path) -> None:
+    done = run(board_dir, "fmt", "bsdl/rc4_link.bsd")
+    expect(done, BAD_INPUT, r"^bsdl/rc4_link\.bsd:\d+:1: error: this looks like a BSDL file, "
+                            r"not a test program$")
+
+
+def test_fmt_a_syntax_error(work: Path) -> None:
+    (work / "bad.loom").write_text('board "b.yaml"\ntest t "t" {\n    step s {\n')
+    done = run(work, "fmt", "bad.loom")
+    expect(done, FAILED, r"^bad\.loom:3:13: error: syntax error: the program ends too early$")
+
+
+@pytest.mark.skipif(not Path("/proc/self/fd").is_dir(), reason="needs /proc (Linux)")
+def test_fmt_write_into_a_folder_that_takes_no_files(work: Path) -> None:
+    # /proc/self/fd/0 reads like the program, but nothing can be created in /proc/self/fd,
+    # not even by the superuser: the rewrite fails and must say so.
+    program = work / "messy.loom"
+    program.write_text('board   "b.yaml"\n')
+    with program.open() as stdin:
+        done = subprocess.run([sys.executable, "-m", "scanloom.cli", "fmt", "--write", "/proc/self/fd/0"],
+                              stdin=stdin, capture_output=True, text=True, check=False)
+    assert "Traceback" not in done.stderr, done.stderr
+    expect(done, BAD_INPUT, r"^error: cannot write program /proc/self/fd/0: ")
+    assert program.read_text() == 'board   "b.yaml"\n'
+
+
+# ---------------------------------------------------------------------------- compile
+
+def test_compile_without_out(board_dir: Path) -> None:
+    done = run(board_dir, "compile", "valve_nets.loom")
+    expect(done, BAD_INPUT, r"^Error: Missing option '--out'")
+
+
+@pytest.mark.parametrize("formats, pattern", [
+    ("json,pdf", r'^error: unknown output format "pdf"$'),
+    ("JSON", r"^  did you mean: json\?$"),
+    (",", r"^Error: Invalid value for --format: name at least one of json, cycles, vcd, listing$"),
+])
+def test_compile_with_wrong_formats(board_dir: Path, formats: str, pattern: str) -> None:
+    done = run(board_dir, "compile", "valve_nets.loom", "--out", "formats", "--format", formats)
+    expect(done, BAD_INPUT, pattern)
+    assert not (board_dir / "formats").exists()
+
+
+def test_compile_into_a_file(board_dir: Path) -> None:
+    done = run(board_dir, "compile", "valve_nets.loom", "--out", "irrigation.yaml")
+    expect(done, BAD_INPUT, r"^Error: Invalid value for '--out': Directory 'irrigation\.yaml' is a file\.$")
+
+
+def test_compile_into_a_folder_that_cannot_be_made(board_dir: Path) -> None:
+    # A folder below a regular file cannot exist, whoever runs the compiler.
+    done = run(board_dir, "compile", "valve_nets.loom", "--out", "irrigation.yaml/out")
+    expect(done, BAD_INPUT, r"^error: cannot write irrigation\.yaml/out: Not a directory$")
+
+
+def test_compile_a_program_with_errors_writes_nothing(board_dir: Path) -> None:
+    (board_dir / "wrong.loom").write_text('board "irrigation.yaml"\ntest t "t" {\n    U1 EXTST\n}\n')
+    done = run(board_dir, "compile", "wrong.loom", "--out", "wrong")
+    expect(done, FAILED, r"^wrong\.loom:3:8: error: U1 \(RC4_CTRL\) has no instruction EXTST$")
+    expect(done, FAILED, r"^wrong\.loom: not compiled: the program has errors$")
+    assert not (board_dir / "wrong").exists()
+
+
+def test_compile_a_board_file(board_dir: Path) -> None:
+    done = run(board_dir, "compile", "irrigation.yaml", "--out", "board_out")
+    expect(done, BAD_INPUT, r"^irrigation\.yaml:15:1: error: this looks like a board file, not a test program$")
+
+
+# ---------------------------------------------------------------------------- verify
+
+def _shift_data(board_dir: Path) -> dict:
+    return json.loads((board_dir / "out" / "valve_nets.json").read_text())
+
+
+def _write(work: Path, name: str, data: object) -> str:
+    (work / name).write_text(json.dumps(data, indent=1))
+    return name
+
+
+def test_verify_an_empty_file(work: Path) -> None:
+    (work / "empty.json").write_text("")
+    done = run(work, "verify", "empty.json")
+    expect(done, BAD_INPUT, r"^empty\.json:1:1: error: not valid JSON: Expecting value$")
+
+
+def test_verify_a_truncated_file(board_dir: Path, work: Path) -> None:
+    text = (board_dir / "out" / "valve_nets.json").read_text()
+    cut = text[:5000]
+    (work / "cut.json").write_text(cut)
+    done = run(work, "verify", "cut.json")
+    lines = cut.splitlines()
+    stderr = expect(done, BAD_INPUT, rf"^cut\.json:{len(lines)}:\d+: error: not valid JSON: Unterminated string$")
+    assert "    " + lines[-1] in stderr.splitlines()
+
+
+@pytest.mark.parametrize("data, pattern", [
+    ({"schema": "other.thing", "version": 1}, r'^other\.json:\d+:\d+: error: schema: not a scanloom shift file$'),
+    ([1, 2, 3], r"^other\.json:1:1: error: the file: expected a shift file object, found a list$"),
+])
+def test_verify_json_of_another_schema(work: Path, data: object, pattern: str) -> None:
+    done = run(work, "verify", _write(work, "other.json", data))
+    expect(done, BAD_INPUT, pattern)
+
+
+def test_verify_another_version(board_dir: Path, work: Path) -> None:
+    data = _shift_data(board_dir)
+    data["version"] = 2
+    done = run(work, "verify", _write(work, "v2.json", data))
+    stderr = expect(done, BAD_INPUT, r"^v2\.json:3:13: error: version: shift file version 2 is not supported$")
+    caret_under(stderr, ' "version": 2,', "2")
+
+
+@pytest.mark.parametrize("path", ["../irrigation/bsdl/rc4_ctrl.bsd", "../irrigation/valve_nets.loom"])
+def test_verify_another_kind_of_file(work: Path, path: str) -> None:
+    done = run(work, "verify", path)
+    expect(done, BAD_INPUT, rf"^{re.escape(path)}:\d+:1: error: this looks like (a BSDL file|a test program), "
+                            r"not a shift file$")
+
+
+def test_verify_a_negative_limit(board_dir: Path) -> None:
+    done = run(board_dir, "verify", "--limit", "-1", "out/valve_nets.json")
+    expect(done, BAD_INPUT, r"^Error: Invalid value for '--limit': -1 is not in the range x>=0\.$")
