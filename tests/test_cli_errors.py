@@ -124,11 +124,38 @@ def test_inspect_a_program_or_a_shift_file(board_dir: Path) -> None:
                               r"not a board file$")
 
 
+def test_a_control_character_in_a_board_is_located(work: Path) -> None:
+    # YAML allows only printable characters in a document (YAML 1.1, 5.1 character set).
+    (work / "ctrl.yaml").write_text("board: x\nchain: [\x07]\n")
+    done = run(work, "inspect", "ctrl.yaml")
+    stderr = expect(done, BAD_INPUT, r"^ctrl\.yaml:2:9: error: the board file is not valid YAML: "
+                                     r"character #x0007 is not allowed")
+    assert "<unicode string>" not in stderr
+
+
 def _board_with(board_dir: Path, name: str, old: str, new: str) -> str:
     text = (board_dir / "irrigation.yaml").read_text()
     assert old in text
     (board_dir / name).write_text(text.replace(old, new))
     return name
+
+
+def test_a_missing_bsdl_file_is_reported_once(board_dir: Path) -> None:
+    name = _board_with(board_dir, "missing_bsdl.yaml", "bsdl/rc4_link.bsd", "bsdl/rc4_lnk.bsd")
+    done = run(board_dir, "inspect", name)
+    stderr = expect(done, BAD_INPUT, r"^missing_bsdl\.yaml:\d+:\d+: error: BSDL file 'bsdl/rc4_lnk\.bsd' "
+                                     r"of U4 not found$")
+    assert re.search(r"^  did you mean: rc4_link\.bsd\b", stderr, re.MULTILINE)
+    # The nets naming U4's pins are not reported one by one: the cause is the chain entry.
+    assert len(re.findall(r": error: ", stderr)) == 1, stderr
+
+
+def test_a_bsdl_path_that_is_a_folder(board_dir: Path) -> None:
+    name = _board_with(board_dir, "folder_bsdl.yaml", "bsdl/rc4_link.bsd", "bsdl")
+    done = run(board_dir, "inspect", name)
+    stderr = expect(done, BAD_INPUT, r"^folder_bsdl\.yaml:\d+:\d+: error: the BSDL path 'bsdl' of U4 "
+                                     r"is a folder$")
+    assert len(re.findall(r": error: ", stderr)) == 1, stderr
 
 
 def test_a_broken_bsdl_file_comes_first_and_notes_are_counted(board_dir: Path) -> None:

@@ -64,6 +64,7 @@ class _BoardBuilder:
         self.file = file
         self.base = Path(file).parent
         self.diag = diagnostics
+        self.unread_refs: set[str] = set()  # chain refs without a device: their pins are not checked
 
     # -- helpers -------------------------------------------------------------------------
     def span(self, *path: str | int) -> SourceSpan | None:
@@ -163,9 +164,16 @@ class _BoardBuilder:
             if not bsdl or not isinstance(bsdl, str):
                 self.error(f"chain entry '{ref}' needs a 'bsdl' file", "chain", index,
                            expected="bsdl: a path relative to the board file")
+                self.unread_refs.add(ref)
                 continue
             bsdl_path = (self.base / bsdl)
+            if bsdl_path.is_dir():
+                self.error(f"the BSDL path '{bsdl}' of {ref} is a folder", "chain", index, "bsdl",
+                           expected="the path of a BSDL file, relative to the board file")
+                self.unread_refs.add(ref)
+                continue
             if not bsdl_path.is_file():
+                self.unread_refs.add(ref)
                 near = nearest(Path(bsdl).name, [p.name for p in bsdl_path.parent.glob("*")]
                                if bsdl_path.parent.is_dir() else [])
                 self.error(f"BSDL file '{bsdl}' of {ref} not found", "chain", index, "bsdl",
@@ -334,6 +342,8 @@ class _BoardBuilder:
         return self.unknown_ref(ref, all_refs, path)
 
     def unknown_ref(self, ref: str, all_refs: list[str], path: tuple[str | int, ...]) -> None:
+        if ref in self.unread_refs:
+            return None  # its chain entry is reported already
         self.error(f"unknown device or part '{ref}'", *path, expected="a ref from 'chain' or 'parts'",
                    suggestions=nearest(ref, all_refs))
         return None

@@ -97,6 +97,12 @@ def load_positioned_yaml(text: str, file: str, diagnostics: Diagnostics) -> Posi
     """Parse YAML text; None (with a diagnostic) when it is not well-formed YAML."""
     try:
         root = yaml.compose(text, Loader=_Composer)
+    except yaml.reader.ReaderError as exc:  # a character YAML does not allow; no mark, an offset
+        character = exc.character if isinstance(exc.character, int) else ord(exc.character)
+        diagnostics.error(f"the board file is not valid YAML: character #x{character:04x} is not "
+                          f"allowed ({exc.reason})", SourceSpan.at_offset(file, text, exc.position),
+                          expected="a YAML mapping with keys such as board, chain and nets")
+        return None
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         span = SourceSpan(file, mark.line + 1, mark.column + 1) if mark else SourceSpan(file, 1, 1)
