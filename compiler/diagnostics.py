@@ -67,9 +67,10 @@ def read_source(path: str | Path) -> str:
     """Read a text file the way every scanloom reader does: bytes as Latin-1 when not UTF-8."""
     data = Path(path).read_bytes()
     try:
-        return data.decode("utf-8")
+        text = data.decode("utf-8")
     except UnicodeDecodeError:
         return data.decode("latin-1")
+    return text.removeprefix("\ufeff")  # the byte-order mark some editors write first
 
 
 def nearest(name: str, candidates: Iterable[str], limit: int = 3) -> tuple[str, ...]:

@@ -244,6 +244,39 @@ def test_unknown_names_come_with_the_nearest_ones(board_dir: Path) -> None:
     assert re.search(r"^  did you mean: EXTEST\?$", stderr, re.MULTILINE)
 
 
+@pytest.mark.parametrize("header, pattern", [
+    ("tck 1e400 Hz", r"^bounds\.loom:2:5: error: a TCK of 1e400 Hz is out of range$"),
+    ("tck 0 Hz", r"^bounds\.loom:2:5: error: the TCK frequency must be above zero$"),
+    ("fight limit 1e400 s", r"^bounds\.loom:2:13: error: the fight limit must be at most an hour$"),
+])
+def test_numbers_out_of_range_in_the_header(board_dir: Path, header: str, pattern: str) -> None:
+    (board_dir / "bounds.loom").write_text(f'board "irrigation.yaml"\n{header}\n')
+    done = run(board_dir, "check", "bounds.loom")
+    expect(done, FAILED, pattern)
+
+
+@pytest.mark.parametrize("wait, pattern", [
+    ("wait 99999999999999999999 clocks", r"wait 99999999999999999999 clocks is too long: one wait "
+                                         r"lasts at most 100,000,000 clocks$"),
+    ("wait 1000 s", r"wait 1000 s is too long \(10,000,000,000 clocks at the declared TCK\): one "
+                    r"wait lasts at most 100,000,000 clocks$"),
+])
+def test_a_wait_too_long_to_lay_out(board_dir: Path, wait: str, pattern: str) -> None:
+    (board_dir / "long_wait.loom").write_text(
+        f'board "irrigation.yaml"\ntck 10 MHz\ntest t "t" {{\n    {wait}\n}}\n')
+    for command in (("check",), ("compile", "--out", "long")):
+        done = run(board_dir, *command, "long_wait.loom")
+        expect(done, FAILED, r"^long_wait\.loom:4:10: error: " + pattern)
+    assert not (board_dir / "long").exists()
+
+
+def test_a_byte_order_mark_is_not_part_of_the_program(board_dir: Path) -> None:
+    text = (board_dir / "valve_nets.loom").read_text()
+    (board_dir / "bom.loom").write_text("\ufeff" + text, encoding="utf-8")
+    done = run(board_dir, "check", "bom.loom")
+    assert done.returncode == OK, done.stderr
+
+
 def test_a_very_long_line_is_cut_around_the_caret(board_dir: Path) -> None:
     (board_dir / "wide.loom").write_text('board "irrigation.yaml"\n' + " " * 5000 + "test ?\n")
     done = run(board_dir, "check", "wide.loom")

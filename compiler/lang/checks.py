@@ -28,13 +28,16 @@ from .header import Header, read_header
 from .values import DRIVE, EXPECT, READ, WRITE, time_in_seconds, value_bits
 
 __all__ = [
-    "OVERRIDABLE_CHECKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
+    "OVERRIDABLE_CHECKS", "MAX_WAIT_CLOCKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
     "ChainScanPlan", "ResetPlan", "TestItemPlan",
     "WaitPlan", "TestPlan", "ProgramPlan", "check_program", "signal_text",
 ]
 
 # Safety checks a test or step may knowingly override with `allow NAME "reason"`.
 OVERRIDABLE_CHECKS = tuple(SAFETY_CHECKS)  # the pre-hardware checks a program may allow
+# The longest single wait: 10 s at 10 MHz. Every clock becomes a bit of each cycle stream and a
+# row of the cycle table, so a wait of hours would exhaust memory instead of saying so.
+MAX_WAIT_CLOCKS = 100_000_000
 
 # One resolved bit of a drive or an expectation: (bit, value character, where it was written).
 BitValue = tuple[BitRef, str, "SourceSpan | None"]
@@ -312,13 +315,21 @@ class _TestChecker:
             return None
         unit, number = amount
         if unit == "clocks":
-            return int(number)
-        if self.header.tck_hz is None:
+            clocks = int(number)
+        elif self.header.tck_hz is None:
             self.diag.error(f"wait {item.amount.number} {item.amount.unit} needs the TCK frequency",
                             item.amount.span, hint="declare it in the header, e.g. tck 10 MHz, "
                                                    "or wait a number of clocks")
             return None
-        return math.ceil(number * self.header.tck_hz)  # whole clocks, rounding up
+        else:
+            clocks = math.ceil(number * self.header.tck_hz)  # whole clocks, rounding up
+        if clocks > MAX_WAIT_CLOCKS:
+            length = "" if unit == "clocks" else f" ({clocks:,} clocks at the declared TCK)"
+            self.diag.error(f"wait {item.amount.number} {item.amount.unit} is too long{length}: "
+                            f"one wait lasts at most {MAX_WAIT_CLOCKS:,} clocks", item.amount.span,
+                            hint="every clock is a row of the cycle table and a bit of each stream")
+            return None
+        return clocks
 
     def allow(self, item: ast.Allow) -> Override | None:
         if item.check not in OVERRIDABLE_CHECKS:

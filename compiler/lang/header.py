@@ -17,6 +17,7 @@ from .values import frequency_in_hz, time_in_seconds
 __all__ = ["Header", "read_header", "DEFAULT_FIGHT_LIMIT_S", "END_STATES"]
 
 DEFAULT_FIGHT_LIMIT_S = 1e-3
+MAX_FIGHT_LIMIT_S = 3600  # longer means no limit at all; also keeps the value a finite float
 END_STATES = {"reset": "TEST_LOGIC_RESET", "idle": "RUN_TEST_IDLE"}
 
 
@@ -66,6 +67,9 @@ def read_header(items: Iterable[ast.TopItem], diagnostics: Diagnostics) -> Heade
             if duration is not None:
                 if duration[1] <= 0:
                     diagnostics.error("the fight limit must be above zero", item.duration.span)
+                elif duration[1] > MAX_FIGHT_LIMIT_S:
+                    diagnostics.error("the fight limit must be at most an hour", item.duration.span,
+                                      hint='to accept a provoked short, write allow short_fight "reason"')
                 else:
                     fight = float(duration[1])
     return Header(board_path, board_span, tck, default, default_span, end_state, fight, spans)

@@ -16,7 +16,7 @@ from ..ir import COMPUTED
 from . import ast
 
 __all__ = ["value_bits", "DRIVE", "EXPECT", "WRITE", "READ", "time_in_seconds",
-           "frequency_in_hz", "TIME_UNITS", "FREQUENCY_UNITS", "describe_value"]
+           "frequency_in_hz", "TIME_UNITS", "FREQUENCY_UNITS", "MIN_TCK_HZ", "MAX_TCK_HZ", "describe_value"]
 
 DRIVE = "drive"
 EXPECT = "expect"
@@ -27,6 +27,10 @@ TIME_UNITS = {"s": Fraction(1), "ms": Fraction(1, 10**3), "us": Fraction(1, 10**
               "ns": Fraction(1, 10**9)}
 FREQUENCY_UNITS = {"Hz": Fraction(1), "kHz": Fraction(10**3), "MHz": Fraction(10**6),
                    "GHz": Fraction(10**9)}
+# Far outside any TAP controller on both sides (common practice: TCK from kHz to about 100 MHz);
+# the bounds keep the conversions to floating point finite and non-zero.
+MIN_TCK_HZ = Fraction(1)
+MAX_TCK_HZ = Fraction(10**10)
 _HEX_BITS = {d: format(int(d, 16), "04b") for d in "0123456789ABCDEF"}
 _HEX_BITS.update({"X": "XXXX", "Z": "ZZZZ"})
 
@@ -176,5 +180,9 @@ def frequency_in_hz(quantity: ast.Quantity, diagnostics: Diagnostics) -> Fractio
     hertz = number * FREQUENCY_UNITS[unit]
     if hertz <= 0:
         diagnostics.error("the TCK frequency must be above zero", quantity.span)
+        return None
+    if not MIN_TCK_HZ <= hertz <= MAX_TCK_HZ:
+        diagnostics.error(f"a TCK of {quantity.number} {quantity.unit} is out of range", quantity.span,
+                          expected="a frequency from 1 Hz to 10 GHz")
         return None
     return hertz
