@@ -412,6 +412,30 @@ def test_verify_another_kind_of_file(work: Path, path: str) -> None:
                             r"not a shift file$")
 
 
+@pytest.mark.parametrize("edit, pattern", [
+    (lambda d: d["records"][3].update(tdi="zz"),
+     r"records\[3\]\.tdi: bad bit string: 5 hex digits expected for 18 bits, found 2$"),
+    (lambda d: d["records"][3].update(kind="xyz"), r'records\[3\]\.kind: unknown record kind "xyz"$'),
+    (lambda d: d["chain"][0].update(ir_length="five"),
+     r'chain\[0\]\.ir_length: expected a whole number >= 1, found "five"$'),
+    # IEEE Std 1149.1-2001, the bypass register is a single shift-register stage (from memory 10.1.1).
+    (lambda d: d["chain"][3]["registers"].update(BYPASS=2),
+     r"chain\[3\]\.registers\.BYPASS: the BYPASS register is 1 bit long \(IEEE 1149\.1\), not 2$"),
+    # A length the reader would otherwise hand to the replay as a register of 2**40 bits.
+    (lambda d: d["chain"][0]["registers"].update(CFGREG=2 ** 40),
+     r"chain\[0\]\.registers\.CFGREG: expected a register length from 1 to 1,000,000, "
+     r"found the number 1099511627776$"),
+    (lambda d: d["chain"][0].update(boundary_length=2 ** 40),
+     r'chain\[0\]\.boundary_length: the boundary register is 209 bits long in "registers", '
+     r"1099511627776 here$"),
+])
+def test_verify_a_hand_edited_file_that_breaks_the_schema(board_dir: Path, work: Path, edit, pattern: str) -> None:
+    data = _shift_data(board_dir)
+    edit(data)
+    done = run(work, "verify", _write(work, "edited.json", data))
+    expect(done, BAD_INPUT, r"^edited\.json:\d+:\d+: error: " + pattern)
+
+
 def test_verify_a_negative_limit(board_dir: Path) -> None:
     done = run(board_dir, "verify", "--limit", "-1", "out/valve_nets.json")
     expect(done, BAD_INPUT, r"^Error: Invalid value for '--limit': -1 is not in the range x>=0\.$")

@@ -20,6 +20,7 @@ from bitarray import bitarray
 
 from ..diagnostics import Diagnostic, ScanloomError, SourceSpan, nearest, read_source
 from ..file_kinds import SHIFT_FILE, misplaced_kind_error
+from ..models.bsdl_registers import MAX_USER_REGISTER, STANDARD_LENGTHS
 from .cycle_stream import CycleStream, tap_states_from_tms
 from .hexbits import hex_digits, hex_to_bits
 from .records import (
@@ -188,8 +189,13 @@ def _read_device(reader: _SchemaReader, value: Any, path: JsonPath) -> DeviceMap
                      for n, code in enumerate(codes))
 
     def register_length(length: Any, at: JsonPath) -> int:
-        if not isinstance(length, int) or isinstance(length, bool) or length < 1:
-            reader.fail(at, f"expected a register length >= 1, found {_describe(length)}")
+        if not isinstance(length, int) or isinstance(length, bool) or not 1 <= length <= MAX_USER_REGISTER:
+            reader.fail(at, f"expected a register length from 1 to {MAX_USER_REGISTER:,}, "
+                            f"found {_describe(length)}")
+        standard = STANDARD_LENGTHS.get(str(at[-1]))
+        if standard is not None and length != standard:
+            reader.fail(at, f"the {at[-1]} register is {standard} bit{'s' * (standard != 1)} long "
+                            f"(IEEE 1149.1), not {length}")
         return length
 
     def register_name(name: Any, at: JsonPath) -> str:
@@ -206,6 +212,11 @@ def _read_device(reader: _SchemaReader, value: Any, path: JsonPath) -> DeviceMap
         if not isinstance(cell, list) or tuple(map(type, cell)) not in _CELL_TYPES:
             reader.fail(at, f"expected a cell [number, type, function, port, net], found {_describe(cell)}")
         cells.append(CellMeaning(cell[0], cell[1], cell[2], cell[3], cell[4]))
+    registers = reader.string_map(data, "registers", path, register_length, "register lengths")
+    boundary_length = reader.integer(data, "boundary_length", path)
+    if registers.get("BOUNDARY", boundary_length) != boundary_length:
+        reader.fail(path + ("boundary_length",), f"the boundary register is {registers['BOUNDARY']} "
+                    f"bits long in \"registers\", {boundary_length} here")
     return DeviceMap(
         ref=reader.text_field(data, "ref", path),
         entity=reader.text_field(data, "entity", path),
@@ -216,8 +227,8 @@ def _read_device(reader: _SchemaReader, value: Any, path: JsonPath) -> DeviceMap
         idcode=idcode,
         opcodes=reader.string_map(data, "opcodes", path, opcodes, "opcode lists"),
         selects=reader.string_map(data, "selects", path, register_name, "register names"),
-        registers=reader.string_map(data, "registers", path, register_length, "register lengths"),
-        boundary_length=reader.integer(data, "boundary_length", path),
+        registers=registers,
+        boundary_length=boundary_length,
         cells=tuple(cells),
     )
 
