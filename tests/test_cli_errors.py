@@ -436,6 +436,15 @@ def test_verify_a_hand_edited_file_that_breaks_the_schema(board_dir: Path, work:
     expect(done, BAD_INPUT, r"^edited\.json:\d+:\d+: error: " + pattern)
 
 
+def test_verify_a_hand_edited_bit_is_a_mismatch(board_dir: Path, work: Path) -> None:
+    data = _shift_data(board_dir)
+    record = data["records"][4]
+    record["tdi"] = format(int(record["tdi"], 16) ^ 1, f"0{len(record['tdi'])}x")  # bit 0 flipped
+    done = run(work, "verify", _write(work, "flipped.json", data))
+    expect(done, FAILED, r"^flipped\.json: record 4, cycle \d+: TDI bit 0 is \d in the cycles, \d in the record$")
+    expect(done, FAILED, r"^flipped\.json: replay found 1 mismatch: ")
+
+
 def test_verify_a_negative_limit(board_dir: Path) -> None:
     done = run(board_dir, "verify", "--limit", "-1", "out/valve_nets.json")
     expect(done, BAD_INPUT, r"^Error: Invalid value for '--limit': -1 is not in the range x>=0\.$")

@@ -82,7 +82,7 @@ def test_a_corrupted_bit_fails_with_exit_1(tmp_path: Path, change, first_line: s
     assert result.exit_code == 1
     lines = result.output.splitlines()
     assert re.fullmatch(re.escape(f"{path}: ") + first_line, lines[0]), result.output
-    assert re.fullmatch(re.escape(f"{path}: ") + r"replay found \d+ mismatches: .*", lines[-1])
+    assert re.fullmatch(re.escape(f"{path}: ") + r"replay found \d+ mismatch(es)?: .*", lines[-1])
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

@@ -82,19 +82,28 @@ class ReplayReport:
         return not self.mismatches
 
     def summary(self) -> str:
-        checked = (f"{self.cycles} TCK, {self.scans} scans; {self.instructions_checked} instructions, "
-                   f"{self.images_checked} register images and {self.known_tdo_bits} known TDO bits checked")
+        checked = (f"{self.cycles} TCK, {_count(self.scans, 'scan')}; "
+                   f"{_count(self.instructions_checked, 'instruction')}, "
+                   f"{_count(self.images_checked, 'register image')} and "
+                   f"{_count(self.known_tdo_bits, 'known TDO bit')} checked")
         if self.ok:
             return f"replay agrees: {checked}"
-        return f"replay found {len(self.mismatches)} mismatches: {checked}"
+        return f"replay found {_count(len(self.mismatches), 'mismatch')}: {checked}"
 
     def render(self, limit: int | None = None) -> str:
         shown = self.mismatches if limit is None else self.mismatches[:limit]
         lines = [str(mismatch) for mismatch in shown]
         if len(shown) < len(self.mismatches):
-            lines.append(f"... and {len(self.mismatches) - len(shown)} more mismatches")
+            lines.append(f"... and {_count(len(self.mismatches) - len(shown), 'more mismatch')}")
         lines.append(self.summary())
         return "\n".join(lines)
+
+
+def _count(number: int, noun: str) -> str:
+    """`1 scan`, `2 scans`, `1 mismatch`, `3 mismatches`."""
+    if number == 1:
+        return f"1 {noun}"
+    return f"{number} {noun}{'es' if noun.endswith('ch') else 's'}"
 
 
 @dataclass
