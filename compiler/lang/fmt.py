@@ -9,8 +9,9 @@ text parses to the same tree as the original.
 
 from __future__ import annotations
 
-from typing import Iterable, Sequence
+from typing import Iterable, Sequence, Union
 
+from ..diagnostics import SourceSpan
 from . import ast
 from .checks import signal_text
 from .parser import parse_text
@@ -20,6 +21,8 @@ __all__ = ["format_program", "format_text", "MAX_WIDTH"]
 
 INDENT = "    "
 MAX_WIDTH = 100
+
+_Statement = Union[ast.TopItem, ast.TestItem, ast.StepItem]  # anything written on its own line(s)
 
 
 def format_text(text: str, file: str = "<program>") -> str:
@@ -122,7 +125,8 @@ class _Formatter:
         if start_line != end_line:
             self.flush_comments(end_line + 1, indent)
 
-    def statement(self, node, indent: str, text_or_parts, force_blank: bool = False,
+    def statement(self, node: _Statement, indent: str, text_or_parts: str | Sequence[str],
+                  force_blank: bool = False,
                   prefix: str = "", suffix: str = "") -> None:
         span = node.span
         self.begin(span.line, indent, force_blank)
@@ -156,7 +160,7 @@ class _Formatter:
         self.flush_comments(end_line + 1, indent)
 
     @staticmethod
-    def end_line(node) -> int:
+    def end_line(node: _Statement) -> int:
         span = node.span
         return span.end_line if span.end_line else span.line
 
@@ -203,11 +207,11 @@ class _Formatter:
         self.out.append("]")
         self.flush_comments(end_line + 1, "")
 
-    def block_open(self, node, indent: str, text: str, force_blank: bool) -> None:
+    def block_open(self, node: _Statement, indent: str, text: str, force_blank: bool) -> None:
         self.begin(node.span.line, indent, force_blank)
         self.out.append(indent + text + " {" + self.trailing(node.span.end_line or node.span.line))
 
-    def block_close(self, end_span, indent: str) -> None:
+    def block_close(self, end_span: SourceSpan, indent: str) -> None:
         self.flush_comments(end_span.line, indent + INDENT)
         self.out.append(indent + "}" + self.trailing(end_span.line))
 

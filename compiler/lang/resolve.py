@@ -9,7 +9,7 @@ with "did you mean" from the names in scope.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Iterable, Mapping
+from typing import Callable, Iterable, Mapping
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
 from ..models.board import Board, PinRef
@@ -37,6 +37,10 @@ class BitRef:
     def key(self) -> str:
         """What two drives of the same wire share: the net, else the pin itself."""
         return self.net if self.net is not None else self.target
+
+
+# Resolves a group declared later in the program on first use (None: reported as wrong).
+GroupResolver = Callable[[str], "tuple[BitRef, ...] | None"]
 
 
 def drives_pins(device: DeviceModel, instruction: str) -> bool:
@@ -139,7 +143,8 @@ class Scope:
             self._signals[signal] = bits
         return bits
 
-    def _signal(self, signal: ast.Signal, diagnostics: Diagnostics, group_resolver) -> tuple[BitRef, ...] | None:
+    def _signal(self, signal: ast.Signal, diagnostics: Diagnostics,
+                group_resolver: GroupResolver | None) -> tuple[BitRef, ...] | None:
         if isinstance(signal, ast.PinSignal):
             bit = self.pin(signal, diagnostics)
             return (bit,) if bit is not None else None
@@ -175,7 +180,7 @@ class Scope:
         # Bit i of a group is its i-th member counted from the last (least significant) one.
         return group[width - 1 - signal.high: width - signal.low]
 
-    def _group(self, name: str, resolver) -> tuple[BitRef, ...] | None:
+    def _group(self, name: str, resolver: GroupResolver | None) -> tuple[BitRef, ...] | None:
         if name in self.groups:
             return self.groups[name]
         if resolver is not None and name in self._pending_groups:
