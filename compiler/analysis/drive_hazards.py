@@ -18,15 +18,9 @@ from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells, series_groups
 from ..safety_checks import Finding
 
-__all__ = ["check_drive_hazards", "check_bypass_expectations", "EnabledOutput", "StepOutputs"]
+__all__ = ["check_drive_hazards", "check_bypass_expectations", "StepOutputs"]
 
 _FUNCTIONAL_KINDS = frozenset({"observe", "bypass", "device_id", "user"})  # system logic drives pins
-
-
-@dataclass(frozen=True, slots=True)
-class EnabledOutput:
-    pin: PinRef
-    value: str  # "0" or "1"
 
 
 @dataclass(frozen=True, slots=True)

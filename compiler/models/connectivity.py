@@ -15,8 +15,7 @@ from .board import Board, Net, PinRef
 from .cells import PIN, resolve_capture
 from .device import DRIVER_FUNCTIONS, RECEIVER_FUNCTIONS, BoundaryCell, DeviceModel
 
-__all__ = ["NetRoles", "net_roles", "series_groups", "pin_can_drive", "pin_can_receive", "receiver_cells",
-           "driver_cells", "NET_KINDS"]
+__all__ = ["NetRoles", "net_roles", "series_groups", "receiver_cells", "driver_cells", "NET_KINDS"]
 
 NET_KINDS = ("scan-to-scan", "cluster", "drive-only", "observe-only", "untestable")
 
@@ -47,16 +46,6 @@ def receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
                 resolve_capture(info, cell.function, instr, True) == PIN for instr in ("EXTEST", "SAMPLE")):
             out.append(cell)
     return tuple(out)
-
-
-def pin_can_drive(board: Board, pin: PinRef) -> bool:
-    entry = board.devices.get(pin.ref)
-    return entry is not None and bool(driver_cells(entry.device, pin.port))
-
-
-def pin_can_receive(board: Board, pin: PinRef) -> bool:
-    entry = board.devices.get(pin.ref)
-    return entry is not None and bool(receiver_cells(entry.device, pin.port))
 
 
 def net_roles(board: Board) -> dict[str, NetRoles]:
