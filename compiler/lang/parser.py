@@ -8,7 +8,6 @@ could have come next; an error at the end of the input points at the last line o
 from __future__ import annotations
 
 import bisect
-import importlib.util
 import re
 from dataclasses import dataclass
 from functools import lru_cache
@@ -22,6 +21,7 @@ from lark.exceptions import (
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, read_source
 from . import ast
 from ..collector import collector_paused
+from ..grammar_support import expected_words, strict_mode_available
 
 __all__ = ["parse_text", "parse_source", "parse_file", "grammar_parser"]
 
@@ -45,10 +45,10 @@ _COMMENT_OR_STRING = re.compile(r'"(?:[^"\\\r\n]|\\.)*"?|#[^\r\n]*')
 @lru_cache(maxsize=16)
 def grammar_parser(file: str) -> Lark:
     """The LALR parser whose transformer stamps spans with `file` (built once per file name)."""
-    strict = importlib.util.find_spec("interegular") is not None  # lark's strict mode needs it
     return Lark.open_from_package(
         "scanloom.grammar", "loom.lark", ("",), parser="lalr", lexer="contextual",
-        keep_all_tokens=True, transformer=_ToAst(file), strict=strict, maybe_placeholders=False,
+        keep_all_tokens=True, transformer=_ToAst(file), strict=strict_mode_available(),
+        maybe_placeholders=False,
     )
 
 
@@ -174,26 +174,12 @@ def _last_line_span(text: str, file: str) -> SourceSpan:
 
 
 def _expected_words(parser: Lark, names: set[str] | frozenset[str]) -> str | None:
-    words: set[str] = set()
-    for name in names:
-        if name in _TERMINAL_WORDS:
-            words.add(_TERMINAL_WORDS[name])
-            continue
-        try:
-            pattern = parser.get_terminal(name).pattern
-        except KeyError:
-            words.add(name.lower())
-            continue
-        if pattern.type == "str":
-            words.add(f"'{pattern.value}'")
-        else:
-            words.add(name.lower())
+    words = expected_words(parser, names, _TERMINAL_WORDS, "'")
     if not words:
         return None
-    ordered = sorted(words, key=lambda w: (not w.startswith("'"), w))
-    if len(ordered) == 1:
-        return ordered[0]
-    return ", ".join(ordered[:-1]) + " or " + ordered[-1]
+    if len(words) == 1:
+        return words[0]
+    return ", ".join(words[:-1]) + " or " + words[-1]
 
 
 @dataclass(frozen=True, slots=True)

@@ -15,9 +15,9 @@ from typing import Any, Iterable
 from lark import Lark, Token, Transformer, v_args
 from lark.tree import Meta
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
-from lark.lexer import PatternStr
 
 from ..diagnostics import Diagnostics, nearest
+from ..grammar_support import expected_words, strict_mode_available
 from .bsdl_ast import (
     AggregateValue, AttributeDecl, AttributeSpec, BsdlFile, ConstantDecl, EntityDecl, GenericDecl,
     Identifier, NameValue, NumberValue, PackageDecl, PortDecl, PortRange, SourceText, StringPiece,
@@ -54,14 +54,9 @@ _TERMINAL_WORDS = {
 @lru_cache(maxsize=1)
 def bsdl_parser() -> Lark:
     """The LALR parser of grammar/bsdl.lark, built once per process (lark grammars are pure)."""
-    try:
-        import interegular  # noqa: F401  (lark's strict mode needs it)
-        strict = True
-    except ImportError:
-        strict = False
     return Lark.open_from_package(
         "scanloom.grammar", "bsdl.lark", parser="lalr", propagate_positions=True,
-        maybe_placeholders=False, strict=strict,
+        maybe_placeholders=False, strict=strict_mode_available(),
     )
 
 
@@ -324,22 +319,7 @@ class _ToAst(Transformer):
 
 
 def _expected_words(parser: Lark, names: Iterable[str]) -> str:
-    words: list[str] = []
-    for name in sorted(set(names)):
-        if name in _TERMINAL_WORDS:
-            words.append(_TERMINAL_WORDS[name])
-            continue
-        try:
-            pattern = parser.get_terminal(name).pattern
-        except KeyError:
-            words.append(name.lower())
-            continue
-        if isinstance(pattern, PatternStr):
-            words.append(f"`{pattern.value}`")
-        else:
-            words.append(name.lower())
-    unique = sorted(set(words), key=lambda w: (not w.startswith("`"), w))
-    return ", ".join(unique)
+    return ", ".join(expected_words(parser, names, _TERMINAL_WORDS, "`"))
 
 
 def _report_syntax_error(error: UnexpectedInput, parser: Lark, source: SourceText,
