@@ -199,13 +199,7 @@ class _Scheduler:
         self.pending = plan.response
 
     def _wait(self, test: Test, wait: Wait) -> None:
-        modes = self._modes(wait.modes)
-        kinds = tuple(self._kind(idx, mode) for idx, mode in enumerate(modes))
-        images = tuple(
-            (self.boundary[idx] if self.boundary[idx] is not None else self.tables[idx].disabled)
-            if kind in PRELOAD_KINDS else None
-            for idx, kind in enumerate(kinds))
-        self._enter(modes, kinds, images, test.name, None)
+        self._enter_holding(wait.modes, test.name, None)
         if wait.clocks > 0:
             self._idle(wait.clocks, test.name, None, "wait")
 
@@ -218,13 +212,7 @@ class _Scheduler:
         recorded for it, and the next step that needs an image loads one again.
         """
         self._flush()
-        modes = self._modes(scan.modes)
-        kinds = tuple(self._kind(idx, mode) for idx, mode in enumerate(modes))
-        images = tuple(
-            (self.boundary[idx] if self.boundary[idx] is not None else self.tables[idx].disabled)
-            if kind in PRELOAD_KINDS else None
-            for idx, kind in enumerate(kinds))
-        self._enter(modes, kinds, images, test.name, scan.name)
+        modes = self._enter_holding(scan.modes, test.name, scan.name)
         self._flush()
         layout = self._layout(modes)
         tdi = bitarray(from_msb_string(scan.tdi))
@@ -243,6 +231,19 @@ class _Scheduler:
             else:
                 self.user[idx].pop(register, None)
         self.applied = None
+
+    def _enter_holding(self, pairs: Sequence[tuple[str, str]], test: str,
+                       step: str | None) -> tuple[str, ...]:
+        """Enter the modes of a wait or a raw scan, which drive nothing new: a device entering a
+        driving mode is preloaded with the image it holds, or with every output disabled."""
+        modes = self._modes(pairs)
+        kinds = tuple(self._kind(idx, mode) for idx, mode in enumerate(modes))
+        images = tuple(
+            (self.boundary[idx] if self.boundary[idx] is not None else self.tables[idx].disabled)
+            if kind in PRELOAD_KINDS else None
+            for idx, kind in enumerate(kinds))
+        self._enter(modes, kinds, images, test, step)
+        return modes
 
     def _tap_reset(self, test: Test) -> None:
         """Test-Logic-Reset: IDCODE (else BYPASS) in force everywhere, no image known."""
