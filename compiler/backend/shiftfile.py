@@ -20,7 +20,7 @@ from bitarray import bitarray
 
 from ..diagnostics import Diagnostic, ScanloomError, SourceSpan, nearest, read_source
 from ..file_kinds import SHIFT_FILE, misplaced_kind_error
-from ..models.bsdl_registers import MAX_USER_REGISTER, STANDARD_LENGTHS
+from ..models.bsdl_registers import MAX_REGISTER_LENGTH, STANDARD_LENGTHS
 from .cycle_stream import CycleStream, tap_states_from_tms
 from .hexbits import hex_digits, hex_to_bits
 from .records import (
@@ -189,8 +189,8 @@ def _read_device(reader: _SchemaReader, value: Any, path: JsonPath) -> DeviceMap
                      for n, code in enumerate(codes))
 
     def register_length(length: Any, at: JsonPath) -> int:
-        if not isinstance(length, int) or isinstance(length, bool) or not 1 <= length <= MAX_USER_REGISTER:
-            reader.fail(at, f"expected a register length from 1 to {MAX_USER_REGISTER:,}, "
+        if not isinstance(length, int) or isinstance(length, bool) or not 1 <= length <= MAX_REGISTER_LENGTH:
+            reader.fail(at, f"expected a register length from 1 to {MAX_REGISTER_LENGTH:,}, "
                             f"found {_describe(length)}")
         standard = STANDARD_LENGTHS.get(str(at[-1]))
         if standard is not None and length != standard:

@@ -20,7 +20,7 @@ from .bsdl_ast import (
 from .bsdl_attributes import parse_pin_map
 from .bsdl_checks import check_pin_map
 from .bsdl_packages import read_cell_packages
-from .bsdl_registers import RegisterReading
+from .bsdl_registers import MAX_REGISTER_LENGTH, RegisterReading
 from .bsdl_scanner import AttributeSyntaxError
 from .device import DeviceModel, Port, RawAttribute, TapPins
 
@@ -37,7 +37,6 @@ USED_ATTRIBUTES = frozenset({
 })
 
 MAX_INSTRUCTION_LENGTH = 1024
-MAX_REGISTER_LENGTH = 1_000_000
 _STANDARD_PACKAGE = re.compile(r"STD_1149_1_\d{4}")
 # Packages of the standards themselves, as opposed to a maker's cell package.
 _STANDARDS_PACKAGES = re.compile(r"STD_1149_\d+_\d{4}")

@@ -28,7 +28,7 @@ from .device import (
 if TYPE_CHECKING:
     from .bsdl_builder import AttributeText
 
-__all__ = ["RegisterReading", "DEFAULT_SELECTS"]
+__all__ = ["RegisterReading", "DEFAULT_SELECTS", "MAX_REGISTER_LENGTH", "STANDARD_LENGTHS"]
 
 T = TypeVar("T")
 
@@ -39,7 +39,7 @@ DEFAULT_SELECTS = {
     "INTEST": "BOUNDARY", "IDCODE": "DEVICE_ID", "USERCODE": "DEVICE_ID", "CLAMP": "BYPASS",
     "HIGHZ": "BYPASS", "EXTEST_PULSE": "BOUNDARY", "EXTEST_TRAIN": "BOUNDARY",
 }
-MAX_USER_REGISTER = 1_000_000  # a sanity limit far above any device
+MAX_REGISTER_LENGTH = 1_000_000  # a sanity limit far above any device, for every data register
 STANDARD_LENGTHS = {"BYPASS": 1, "DEVICE_ID": 32}  # 10.1.1 and 12.1.1 (from memory)
 # Cell types of the IEEE 1149.6 package (from memory); their captures are not in cells.py.
 AC_CELL_PREFIX = "AC_"
@@ -159,10 +159,10 @@ class RegisterReading:
                 continue
             else:
                 length = int(entry.length.text)
-                if not 1 <= length <= MAX_USER_REGISTER or registers.get(register, length) != length:
+                if not 1 <= length <= MAX_REGISTER_LENGTH or registers.get(register, length) != length:
                     self.diagnostics.error(f"register `{register}` is given {length} bits",
                                            text.locate(entry.length.start, entry.length.end),
-                                           expected=f"one length of 1 .. {MAX_USER_REGISTER:,} bits",
+                                           expected=f"one length of 1 .. {MAX_REGISTER_LENGTH:,} bits",
                                            code="bsdl-check")
                 registers[register] = length
             for name in entry.instructions:
