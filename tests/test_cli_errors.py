@@ -425,9 +425,11 @@ def test_verify_another_kind_of_file(work: Path, path: str) -> None:
     (lambda d: d["chain"][0]["registers"].update(CFGREG=2 ** 40),
      r"chain\[0\]\.registers\.CFGREG: expected a register length from 1 to 1,000,000, "
      r"found the number 1099511627776$"),
-    (lambda d: d["chain"][0].update(boundary_length=2 ** 40),
+    (lambda d: d["chain"][0].update(boundary_length=208),
      r'chain\[0\]\.boundary_length: the boundary register is 209 bits long in "registers", '
-     r"1099511627776 here$"),
+     r"208 here$"),
+    (lambda d: (d["chain"][1]["registers"].pop("BOUNDARY"), d["chain"][1].update(boundary_length=2 ** 40)),
+     r"chain\[1\]\.boundary_length: expected a register length from 0 to 1,000,000, found 1099511627776$"),
 ])
 def test_verify_a_hand_edited_file_that_breaks_the_schema(board_dir: Path, work: Path, edit, pattern: str) -> None:
     data = _shift_data(board_dir)

@@ -214,6 +214,9 @@ def _read_device(reader: _SchemaReader, value: Any, path: JsonPath) -> DeviceMap
         cells.append(CellMeaning(cell[0], cell[1], cell[2], cell[3], cell[4]))
     registers = reader.string_map(data, "registers", path, register_length, "register lengths")
     boundary_length = reader.integer(data, "boundary_length", path)
+    if boundary_length > MAX_REGISTER_LENGTH:
+        reader.fail(path + ("boundary_length",), f"expected a register length from 0 to "
+                    f"{MAX_REGISTER_LENGTH:,}, found {boundary_length}")
     if registers.get("BOUNDARY", boundary_length) != boundary_length:
         reader.fail(path + ("boundary_length",), f"the boundary register is {registers['BOUNDARY']} "
                     f"bits long in \"registers\", {boundary_length} here")
