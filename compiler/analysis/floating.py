@@ -2,50 +2,111 @@
 
 What a floating input reads depends on the receiver: a bipolar (TTL) input floats high, a
 CMOS input is undefined (common practice; electronics handbooks). A pull resistor decides the
-value and is not floating. The levels are the fault-free virtual board's.
+value and is not floating.
+
+A node counts as possibly driven when it has a pull, an output of a part without boundary
+scan (its logic may enable it), or a scan output of a device in a functional mode (its own
+logic drives it); otherwise it floats exactly when every scan output on it is disabled by the
+step's images: one indexed read of the chain-wide image gives every output's enable at once.
 """
 
 from __future__ import annotations
 
-from ..diagnostics import Diagnostics
+from bitarray import bitarray
+
+from ..backend.images import CLAMP, DRIVE, ChainImages, device_tables, mode_kind
 from ..ir import Program
 from ..models.board import Board, PinRef
+from ..models.connectivity import driver_cells, series_groups
 from ..safety_checks import Finding
-from ..sim.electrical import build_electrical
-from .computed import iter_step_levels
 
 __all__ = ["check_floating_expectations"]
 
+_FUNCTIONAL = frozenset({"observe", "bypass", "device_id", "user"})
+
 
 def check_floating_expectations(program: Program, board: Board) -> list[Finding]:
-    wanted = any(e.value in ("0", "1") for t in program.tests for s in t.steps for e in s.expects)
-    if not wanted:
+    if not any(e.value in ("0", "1") for t in program.tests for s in t.steps for e in s.expects):
         return []
-    electrical = build_electrical(board, Diagnostics())
+    refs = [entry.ref for entry in board.chain]
+    index = {ref: i for i, ref in enumerate(refs)}
+    images = ChainImages([device_tables(e.ref, e.device) for e in board.chain])
+    groups = series_groups(board)
+    logic_pins = {PinRef(part.ref, pin) for part in board.parts.values() for pin in part.logic}
+
+    # Every scan output, grouped by device (a contiguous range each): its node, the chain-image
+    # position of its control cell and that cell's disable value. A two-state output has no
+    # control: it points at a constant 1 appended to the image, with disable value 0.
+    node_of_net: dict[str, tuple[str, ...]] = {}
+    always_driven: set[tuple[str, ...]] = set()
+    per_device: list[list[tuple[tuple[str, ...], int, int]]] = [[] for _ in refs]
+    for net in board.nets.values():
+        node = groups.get(net.name, (net.name,))
+        node_of_net[net.name] = node
+        if board.pulls.get(net.name):
+            always_driven.add(node)
+        for pin in net.pins:
+            if pin in logic_pins:
+                always_driven.add(node)
+            idx = index.get(pin.ref)
+            if idx is None:
+                continue
+            for cell in driver_cells(board.chain[idx].device, pin.port)[:1]:
+                if cell.control_cell is not None and cell.disable_value is not None:
+                    per_device[idx].append((node, images.starts[idx] + cell.control_cell, cell.disable_value))
+                else:
+                    per_device[idx].append((node, -1, 0))
+    always_on = len(images.disabled)
+    owners = [node for outs in per_device for node, _, _ in outs]
+    controls = [c if c >= 0 else always_on for outs in per_device for _, c, _ in outs]
+    disable = bitarray([d for outs in per_device for _, _, d in outs])
+    ranges, at = [], 0
+    for outs in per_device:
+        ranges.append((at, at + len(outs)))
+        at += len(outs)
+    outputs_of: dict[tuple[str, ...], list[int]] = {}
+    for k, node in enumerate(owners):
+        outputs_of.setdefault(node, []).append(k)
+    undriven = {node for node in node_of_net.values() if node not in outputs_of} - always_driven
+
     findings: list[Finding] = []
-    for test, step, levels in iter_step_levels(program, board, electrical):
-        reported: set[int] = set()
-        for expect in step.expects:
-            if expect.value not in ("0", "1"):
+    for test in program.tests:
+        for step in test.steps:
+            targets = [e for e in step.expects if e.value in ("0", "1")]
+            if not targets:
                 continue
-            if expect.is_pin:
-                pin = PinRef.parse(expect.target)
-                net = board.net_of_pin.get(pin)
-            else:
-                net = expect.target
-            if net is None or net not in board.nets:
+            kinds = tuple(mode_kind(e.device, instr) for e, (_, instr) in zip(board.chain, step.modes))
+            image = bitarray(images.build(kinds, step.drives).chain_image)
+            image.append(1)
+            enabled = image[controls] ^ disable if controls else bitarray()
+            for idx, (kind, (_, instruction)) in enumerate(zip(kinds, step.modes)):
+                lo, hi = ranges[idx]
+                if lo == hi or kind in (DRIVE, CLAMP):
+                    continue
+                # A functional device drives with its own logic; HIGHZ and the rest drive nothing.
+                enabled[lo:hi] = kind in _FUNCTIONAL and instruction.upper() != "HIGHZ"
+            floating = set(undriven)
+            for k in enabled.search(0):
+                node = owners[k]
+                if node not in always_driven and not any(enabled[j] for j in outputs_of[node]):
+                    floating.add(node)
+            if not floating:
                 continue
-            node = electrical.node_of_pin.get(board.nets[net].pins[0]) if board.nets[net].pins else None
-            if node is None or node in reported or not levels[node].fl & 1:
-                continue
-            reported.add(node)
-            readers = sorted({board.technology_of(p.ref) for p in board.nets[net].pins
-                              if p.ref in board.devices})
-            reads = "; ".join("a TTL receiver reads 1" if t == "ttl" else "a CMOS receiver reads an "
-                              "undefined value" for t in readers) or "its receivers read an undefined value"
-            findings.append(Finding(
-                "floating",
-                f"net {net} floats in step {step.name} (nothing drives it), yet {expect.value} is "
-                f"expected: {reads}", expect.span or step.span, test.name, step.name,
-                hint="drive the net, release the expectation (X), or expect what the receiver reads"))
+            reported: set[tuple[str, ...]] = set()
+            for expect in targets:
+                net = board.net_of_pin.get(PinRef.parse(expect.target)) if expect.is_pin else expect.target
+                node = node_of_net.get(net) if net else None
+                if node is None or node not in floating or node in reported:
+                    continue
+                reported.add(node)
+                readers = sorted({board.technology_of(p.ref) for n in node for p in board.nets[n].pins
+                                  if p.ref in index})
+                reads = "; ".join("a TTL receiver reads 1" if t == "ttl" else
+                                  "a CMOS receiver reads an undefined value" for t in readers) \
+                    or "its receivers read an undefined value"
+                findings.append(Finding(
+                    "floating",
+                    f"net {net} floats in step {step.name} (nothing drives it), yet {expect.value} is "
+                    f"expected: {reads}", expect.span or step.span, test.name, step.name,
+                    hint="drive the net, release the expectation (X), or expect what the receiver reads"))
     return findings

@@ -35,7 +35,8 @@ class FightWindow:
     test: str | None
     step: str | None
     seconds: float
-    pairs: tuple[tuple[PinRef, PinRef], ...]
+    first: tuple[PinRef, PinRef]  # the first opposed pair in chain order
+    count: int  # how many pairs oppose
 
 
 @dataclass(frozen=True, slots=True)
@@ -47,7 +48,8 @@ class _Output:
 
 
 def _adjacent_outputs(board: Board) -> list[tuple[_Output, _Output]]:
-    """Pairs of scan outputs on neighbouring package pins of one device, on different nets."""
+    """Pairs of scan outputs on neighbouring package pins of one device, on different nets,
+    in chain order (each device's pairs together)."""
     pairs = []
     for entry in board.chain:
         device = entry.device
@@ -65,11 +67,54 @@ def _adjacent_outputs(board: Board) -> list[tuple[_Output, _Output]]:
     return pairs
 
 
-def _driven(output: _Output, image: bitarray) -> int | None:
-    if output.control is not None and output.disable_value is not None \
-            and 0 <= output.control < len(image) and image[output.control] == output.disable_value:
-        return None
-    return image[output.data] if 0 <= output.data < len(image) else None
+class _PairTable:
+    """The pairs' cells as positions in a chain-wide image, so one window is a few bitarray
+    operations: an interconnect test of a large board has a hundred thousand neighbour pairs."""
+
+    def __init__(self, board: Board, pairs: list[tuple[_Output, _Output]]):
+        self.refs = [entry.ref for entry in board.chain]
+        self.lengths = [entry.device.boundary_length for entry in board.chain]
+        starts, at = {}, 0
+        for ref, length in zip(self.refs, self.lengths):
+            starts[ref] = at
+            at += length
+        self.sentinel = at  # a constant 1 appended to the image: the "control" of a 2-state output
+        self.pairs = pairs
+
+        def columns(side: int) -> tuple[list[int], list[int], bitarray]:
+            data, control, disable = [], [], []
+            for pair in pairs:
+                out = pair[side]
+                base = starts[out.pin.ref]
+                data.append(base + out.data)
+                if out.control is None or out.disable_value is None:
+                    control.append(self.sentinel)
+                    disable.append(0)
+                else:
+                    control.append(base + out.control)
+                    disable.append(out.disable_value)
+            return data, control, bitarray(disable)
+
+        self.a = columns(0)
+        self.b = columns(1)
+        self.ranges: dict[str, tuple[int, int]] = {}
+        for k, (a, _) in enumerate(pairs):
+            lo, _ = self.ranges.get(a.pin.ref, (k, k))
+            self.ranges[a.pin.ref] = (lo, k + 1)
+
+    def opposed(self, images: dict[str, bitarray], driving: set[str]) -> bitarray:
+        """1 for each pair whose two outputs are enabled and drive different values."""
+        chain = bitarray()
+        for ref, length in zip(self.refs, self.lengths):
+            image = images.get(ref)
+            chain += image if image is not None and len(image) == length else bitarray(length)
+        chain.append(1)
+        (da, ca, xa), (db, cb, xb) = self.a, self.b
+        result = (chain[ca] ^ xa) & (chain[cb] ^ xb) & (chain[da] ^ chain[db])
+        for ref, (lo, hi) in self.ranges.items():
+            if ref not in driving or ref not in images:
+                result[lo:hi] = 0
+        return result
 
 
 def fight_windows(scan: ScanProgram, cycles: CycleStream, board: Board, tck_hz: float,
@@ -78,6 +123,7 @@ def fight_windows(scan: ScanProgram, cycles: CycleStream, board: Board, tck_hz: 
     pairs = _adjacent_outputs(board)
     if not pairs:
         return []
+    table: _PairTable | None = None
     scans = [i for i, r in enumerate(scan.records) if r.kind in (IR_SCAN, DR_SCAN)]
     update_cycle: dict[int, int] = {}
     for k, index in enumerate(scans):  # Update-xR: two edges after the last Shift-xR edge
@@ -87,31 +133,27 @@ def fight_windows(scan: ScanProgram, cycles: CycleStream, board: Board, tck_hz: 
     windows: list[FightWindow] = []
     for position, index in enumerate(scans):
         record = scan.records[index]
-        reset_between = any(r.kind == RESET for r in scan.records[scans[position - 1] + 1:index]) \
-            if position else False
-        if reset_between:
+        if position and any(r.kind == RESET for r in scan.records[scans[position - 1] + 1:index]):
             instruction.clear()
             images.clear()
         if record.kind == IR_SCAN:
             instruction.update(record.intent)
         else:
             for ref, image in record.intent.items():
-                images[ref] = from_msb_string(image)
+                images[ref] = bitarray(from_msb_string(image))
         following = scans[position + 1] if position + 1 < len(scans) else None
         end = update_cycle[following] if following is not None else cycles.count
         seconds = (end - update_cycle[index]) / tck_hz
         if seconds <= limit_s:
             continue
-        opposed = []
-        for a, b in pairs:
-            if instruction.get(a.pin.ref, "").upper() not in _DRIVING or a.pin.ref not in images:
-                continue
-            image = images[a.pin.ref]
-            va, vb = _driven(a, image), _driven(b, image)
-            if va is not None and vb is not None and va != vb:
-                opposed.append((a.pin, b.pin))
-        if opposed:
-            windows.append(FightWindow(index, record.test, record.step, seconds, tuple(opposed)))
+        table = table or _PairTable(board, pairs)
+        driving = {ref for ref, name in instruction.items() if name.upper() in _DRIVING}
+        opposed = table.opposed(images, driving)
+        count = opposed.count()
+        if count:
+            k = opposed.index(1)
+            windows.append(FightWindow(index, record.test, record.step, seconds,
+                                       (pairs[k][0].pin, pairs[k][1].pin), count))
     return windows
 
 
@@ -127,8 +169,8 @@ def check_short_fights(scan: ScanProgram, cycles: CycleStream, board: Board, tck
         if key in seen:
             continue
         seen.add(key)
-        a, b = window.pairs[0]
-        more = f" and {len(window.pairs) - 1} more pairs" if len(window.pairs) > 1 else ""
+        a, b = window.first
+        more = f" and {window.count - 1} more pairs" if window.count > 1 else ""
         where = f" in step {window.step}" if window.step else ""
         span = (step_spans or {}).get(key) if window.test and window.step else None
         findings.append(Finding(

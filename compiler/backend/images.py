@@ -11,7 +11,8 @@ have tens of thousands of cells and programs tens of scans.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import weakref
+from dataclasses import dataclass, field, replace
 from itertools import compress
 from operator import attrgetter
 from typing import Iterable, Mapping, Sequence
@@ -171,7 +172,22 @@ def _cell_info(device: DeviceModel, cell_type: str) -> CellInfo | None:
     return info
 
 
+# Tables depend only on the device model; boards repeat part types and several stages ask for
+# them, so they are kept per model for as long as the model lives (weakly: no run leaks).
+_TABLES_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, DeviceTables]" = weakref.WeakKeyDictionary()
+
+
 def device_tables(ref: str, device: DeviceModel) -> DeviceTables:
+    """A device's safe image, its all-disabled image and its per-port cell tables (computed once
+    per device model; `ref` names the instance)."""
+    known = _TABLES_OF_MODEL.get(device)
+    if known is None:
+        known = _compute_tables(ref, device)
+        _TABLES_OF_MODEL[device] = known
+    return known if known.ref == ref else replace(known, ref=ref)
+
+
+def _compute_tables(ref: str, device: DeviceModel) -> DeviceTables:
     """Precompute a device's safe image, its all-disabled image and its per-port cell tables.
 
     A merged cell (two entries, one number) carries one bit; its output or control role sets

@@ -31,7 +31,7 @@ class NetRoles:
 
 
 def driver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
-    return tuple(c for c in device.cells_of(port) if c.function in DRIVER_FUNCTIONS)
+    return device.driver_cells_by_port.get(port, ())
 
 
 def receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:

@@ -181,6 +181,13 @@ class DeviceModel:
                 index.setdefault(cell.port, []).append(cell)
         return {port: tuple(cells) for port, cells in index.items()}
 
+    @cached_property
+    def driver_cells_by_port(self) -> dict[str, tuple[BoundaryCell, ...]]:
+        """The cells that can drive each port bit (OUTPUT2, OUTPUT3, BIDIR)."""
+        index = {port: tuple(c for c in cells if c.function in DRIVER_FUNCTIONS)
+                 for port, cells in self.cells_by_port.items()}
+        return {port: cells for port, cells in index.items() if cells}
+
     def cells_of(self, port_bit: str) -> tuple[BoundaryCell, ...]:
         return self.cells_by_port.get(port_bit, ())
 
