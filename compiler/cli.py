@@ -47,11 +47,8 @@ def main() -> None:
 @click.option("--notes", is_flag=True, help="Also list the readers' notes (attributes not used ...).")
 def inspect_command(board: str, as_json: bool, notes: bool) -> None:
     """Show the chain TDI -> TDO and the nets of BOARD, grouped by how they can be tested."""
-    import json
-
-    from .analysis.board_summary import board_summary, render_board_summary
+    from .analysis.board_summary import board_summary, render_board_summary, summary_json
     from .models.board_loader import load_board
-
     from .pipeline import validate_board_logic
 
     diagnostics = Diagnostics()
@@ -62,7 +59,7 @@ def inspect_command(board: str, as_json: bool, notes: bool) -> None:
         sys.exit(report_error(error, notes=notes))
     summary = board_summary(model)
     if as_json:
-        click.echo(json.dumps(summary, indent=2))
+        click.echo(summary_json(summary), nl=False)
     else:
         click.echo(render_board_summary(summary, model), nl=False)
     report_diagnostics(diagnostics, notes=notes)
@@ -179,25 +176,22 @@ def verify_command(shift_file: str, limit: int, allowed: tuple[str, ...]) -> Non
     Exit 0 when every record does what it says, 1 on a mismatch (a compiler bug or a damaged
     file) or a sequencing hazard, 2 when the file cannot be read or is not a scanloom shift file.
     """
+    from .analysis.prehardware import RECORD_CHECKS, check_records
     from .backend.shiftfile import read_shift_file
+    from .diagnostics import nearest
     from .sim.replay import replay
 
+    for name in allowed:
+        if name not in RECORD_CHECKS:
+            raise click.BadParameter(f"{name!r} is not a check of shift records; choose from "
+                                     f"{', '.join(RECORD_CHECKS)}"
+                                     + "".join(f" (did you mean {n}?)" for n in nearest(name, RECORD_CHECKS)),
+                                     param_hint="--allow")
     try:
         program, cycles = read_shift_file(shift_file)
     except ScanloomError as error:
         sys.exit(report_error(error))
     report = replay(program, cycles)
-    from .analysis.prehardware import check_records
-
-    from .safety_checks import CHECKS
-
-    for name in allowed:
-        if name not in CHECKS:
-            from .diagnostics import Diagnostic, nearest
-
-            sys.exit(report_error(ScanloomError([Diagnostic(
-                "error", f"unknown check {name!r} in --allow", expected=", ".join(CHECKS),
-                suggestions=nearest(name, CHECKS))])))
     hazards = [f for f in check_records(program).findings if f.check not in allowed]
     for finding in hazards:
         click.echo(f"{shift_file}: error: [{finding.check}] {finding.message}", err=True)
@@ -213,7 +207,9 @@ def verify_command(shift_file: str, limit: int, allowed: tuple[str, ...]) -> Non
         sys.exit(EXIT_FAIL)
     click.echo(f"{shift_file}: {report.summary()}")
     if hazards:
-        click.echo(f"{shift_file}: {len(hazards)} sequencing hazard(s): not safe to run", err=True)
+        count = len(hazards)
+        click.echo(f"{shift_file}: {count} sequencing hazard{'s' * (count != 1)}: not safe to run "
+                   f"(--allow {hazards[0].check} accepts it where the file means it)", err=True)
         sys.exit(EXIT_FAIL)
 
 
@@ -343,6 +339,69 @@ def faults_command(target: str, faults_file: str | None, universe: str, as_json:
     else:
         click.echo(report.render(details=not summary), nl=False)
     report_diagnostics(diagnostics)
+
+
+@main.command("generate", epilog=EXIT_CODES_HELP)
+@click.argument("board", type=click.Path(dir_okay=False))
+@click.option("--kind", type=click.Choice(["integrity", "interconnect", "all"]), default="all",
+              show_default=True, help="Chain-integrity tests, interconnect tests, or both.")
+@click.option("--codes", type=click.Choice(["counting", "true-complement", "walking-one"]),
+              default="counting", show_default=True,
+              help="The interconnect code sequence (modified counting, true/complement, walking one).")
+@click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False),
+              help="The program to write (.loom); its board line is relative to it.")
+def generate_command(board: str, kind: str, codes: str, output: str) -> None:
+    """Write a commented test program (.loom) for BOARD: chain integrity and/or interconnect.
+
+    Integrity: instruction capture, bypass path length, IDCODEs, boundary-register lengths and
+    the instruction after Test-Logic-Reset. Interconnect: every net a scan device drives and
+    another scan pin receives gets a code; a net with several drivers is tested once per
+    driver; held nets stay held, never_drive nets are never driven.
+    """
+    from pathlib import Path
+
+    from .analysis.generate import board_reference, generate_program
+    from .backend.writers.atomic import write_atomically
+    from .models.board_loader import load_board
+
+    diagnostics = Diagnostics()
+    try:
+        model = load_board(board, diagnostics)
+        generated = generate_program(model, board_reference(board, output), kind, codes)
+    except ScanloomError as error:
+        sys.exit(report_error(error))
+    try:
+        write_atomically(Path(output), generated.text)
+    except OSError as error:
+        from .diagnostics import Diagnostic
+
+        sys.exit(report_error(ScanloomError([Diagnostic(
+            "error", f"cannot write program {output}: {error.strerror or error}")])))
+    click.echo(f"{output}: {generated.summary()}")
+
+
+@main.command("diagnose", epilog=EXIT_CODES_HELP)
+@click.argument("shift_file", type=click.Path(dir_okay=False))
+@click.option("--capture", "capture_path", required=True, type=click.Path(dir_okay=False),
+              help="The TDO the board returned: CSV `cycle,tdo`, one row per TCK (X: not recorded).")
+@click.option("--json", "as_json", is_flag=True, help="Print the diagnosis as JSON.")
+@click.option("--limit", default=50, show_default=True, type=click.IntRange(min=0),
+              help="List at most this many failing bits (0 lists all).")
+def diagnose_command(shift_file: str, capture_path: str, as_json: bool, limit: int) -> None:
+    """Explain the failing bits of a capture: stuck, open and shorted nets, broken chains.
+
+    Every failing bit is named by test, step, device, cell, pin and net; the explanations
+    come most likely first, each with the faults that fit equally well.
+    Exit 0 when the capture matches, 1 when failures were diagnosed, 2 bad input.
+    """
+    from .analysis.diagnose import diagnose_files
+
+    try:
+        diagnosis = diagnose_files(shift_file, capture_path)
+    except ScanloomError as error:
+        sys.exit(report_error(error))
+    click.echo(diagnosis.to_json() if as_json else diagnosis.render(limit), nl=False)
+    sys.exit(EXIT_OK if diagnosis.passed else EXIT_FAIL)
 
 
 if __name__ == "__main__":  # pragma: no cover

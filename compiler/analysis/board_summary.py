@@ -6,6 +6,7 @@ order (leftmost nearest TDI).
 
 from __future__ import annotations
 
+import json
 import os
 from pathlib import Path
 from typing import Any
@@ -13,7 +14,16 @@ from typing import Any
 from ..models.board import Board
 from ..models.connectivity import NET_KINDS, net_roles
 
-__all__ = ["board_summary", "render_board_summary"]
+__all__ = ["board_summary", "render_board_summary", "summary_json"]
+
+
+def summary_json(summary: dict[str, Any]) -> str:
+    """The summary as JSON: the chain indented, one net per line (large boards have tens of
+    thousands of nets, and the standard library encodes flat values far faster than indented)."""
+    chain = ",\n".join("    " + json.dumps(dev) for dev in summary["chain"])
+    nets = ",\n".join("    " + json.dumps(net) for net in summary["nets"])
+    return (f'{{\n  "board": {json.dumps(summary["board"])},\n  "chain": [\n{chain}\n  ],\n'
+            f'  "nets": [\n{nets}\n  ]\n}}\n')
 
 
 def board_summary(board: Board) -> dict[str, Any]:

@@ -9,6 +9,7 @@ cell descriptions). Nets joined through series parts (resistor packs, jumpers) a
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 
 from .board import Board, Net, PinRef
@@ -34,8 +35,20 @@ def driver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
     return device.driver_cells_by_port.get(port, ())
 
 
+_RECEIVERS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, dict[str, tuple[BoundaryCell, ...]]]" = \
+    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
+
+
 def receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
     """Cells of `port` that capture the pin under EXTEST or SAMPLE."""
+    known = _RECEIVERS_OF_MODEL.get(device)
+    if known is None:
+        known = {p: _receiver_cells(device, p) for p in device.cells_by_port}
+        _RECEIVERS_OF_MODEL[device] = known
+    return known.get(port, ())
+
+
+def _receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
     out = []
     for cell in device.cells_of(port):
         if cell.function in RECEIVER_FUNCTIONS:
