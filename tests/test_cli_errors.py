@@ -447,6 +447,45 @@ def test_verify_a_hand_edited_bit_is_a_mismatch(board_dir: Path, work: Path) -> 
     expect(done, FAILED, r"^flipped\.json: replay found 1 mismatch: ")
 
 
+def _flip(hex_text: str, bit: int) -> str:
+    """Flip bit `bit` of a shift-file hex string (bit 0 = least significant = last digit)."""
+    value = int(hex_text, 16) ^ (1 << bit)
+    return format(value, f"0{len(hex_text)}x")
+
+
+def test_verify_a_hand_edited_extest_without_preload_is_a_hazard(board_dir: Path, work: Path) -> None:
+    # Record 1 loads PRELOAD (00010) into U1, the device nearest TDI: its 5 IR bits are the last
+    # of the 18-bit scan (offset 13). Clearing opcode bit 1 (scan bit 14) in the record and in the
+    # cycles makes it EXTEST (00000): the replay agrees bit for bit, but U1 now drives its pins
+    # before its boundary register was loaded (IEEE Std 1149.1-2001, EXTEST clause, from memory
+    # 8.8: the update stage must hold defined data first).
+    data = _shift_data(board_dir)
+    record = data["records"][1]
+    assert record["intent"]["U1"] == "PRELOAD" and record["length"] == 18
+    record["tdi"] = _flip(record["tdi"], 14)
+    record["intent"]["U1"] = "EXTEST"
+    cycles = data["cycles"]
+    cycles["tdi"] = _flip(cycles["tdi"], cycles["shift_starts"][0] + 14)
+    name = _write(work, "no_preload.json", data)
+    done = run(work, "verify", name)
+    expect(done, FAILED, r"^no_preload\.json: error: \[no_preload\] record 1 \(IR scan\): U1 enters EXTEST "
+                         r"but its boundary register was not loaded since Test-Logic-Reset$")
+    expect(done, FAILED, r"^no_preload\.json: 1 sequencing hazard: not safe to run")
+    assert re.search(r"^no_preload\.json: replay agrees: ", done.stdout, re.MULTILINE), done.stdout
+    accepted = run(work, "verify", "--allow", "no_preload", name)
+    assert accepted.returncode == OK, accepted.stderr
+
+
+@pytest.mark.parametrize("name, pattern", [
+    ("contention", r"^Error: Invalid value for --allow: 'contention' is not a check of shift records; "
+                   r"choose from no_preload$"),
+    ("no_prelod", r"\(did you mean no_preload\?\)$"),
+])
+def test_verify_allows_only_checks_of_shift_records(board_dir: Path, name: str, pattern: str) -> None:
+    done = run(board_dir, "verify", "--allow", name, "out/valve_nets.json")
+    expect(done, BAD_INPUT, pattern)
+
+
 def test_verify_a_negative_limit(board_dir: Path) -> None:
     done = run(board_dir, "verify", "--limit", "-1", "out/valve_nets.json")
     expect(done, BAD_INPUT, r"^Error: Invalid value for '--limit': -1 is not in the range x>=0\.$")

@@ -21,7 +21,9 @@ from .floating import check_floating_expectations
 from .short_fights import check_short_fights
 from .sequencing import check_compliance, check_preload, check_self_test_idle, check_tck
 
-__all__ = ["CheckReport", "check_program", "check_records", "report_findings"]
+__all__ = ["CheckReport", "RECORD_CHECKS", "check_program", "check_records", "report_findings"]
+
+RECORD_CHECKS = ("no_preload",)  # what `check_records` can find on shift records alone
 
 
 @dataclass
@@ -55,6 +57,7 @@ def check_program(program: Program, board: Board, scan: ScanProgram | None = Non
 
 
 def check_records(scan: ScanProgram) -> CheckReport:
+    """The checks of RECORD_CHECKS, on records that may come from elsewhere (`scanloom verify`)."""
     return CheckReport(check_preload(scan))
 
 

@@ -74,7 +74,9 @@ class Scope:
         self._core_inputs: dict[str, frozenset[str]] = {}
         self._observed: dict[tuple[str, str], frozenset[str]] = {}
         self._net_scan_pins: dict[str, tuple[PinRef, ...]] = {}
-        self._driver_choice: dict[tuple[tuple[tuple[str, str], ...], str], str | None] = {}
+        # modes of a step -> target -> chosen driver: one dictionary per set of modes, so the
+        # lookup per driven bit is a plain string key (tens of thousands of bits per step).
+        self._driver_choice: dict[tuple[tuple[str, str], ...], dict[str, str | None]] = {}
         self._observer_choice: dict[tuple[tuple[tuple[str, str], ...], str], tuple[str, ...]] = {}
         self._signals: dict[ast.Signal, tuple[BitRef, ...]] = {}
 
@@ -347,9 +349,11 @@ class Scope:
 
         Pins that drive the net itself (EXTEST, CLAMP) come before INTEST's core-side inputs.
         """
-        cache_key = (modes_key, bit.target)
-        if cache_key in self._driver_choice:
-            return self._driver_choice[cache_key]
+        chosen = self._driver_choice.get(modes_key)
+        if chosen is None:
+            chosen = self._driver_choice.setdefault(modes_key, {})
+        elif bit.target in chosen:
+            return chosen[bit.target]
         choice: str | None = None
         if bit.is_pin:
             pin = PinRef.parse(bit.target)
@@ -366,7 +370,7 @@ class Scope:
                     if drives_core(modes[pin.ref]) and pin.port in self.core_input_ports(pin.ref):
                         choice = str(pin)
                         break
-        self._driver_choice[cache_key] = choice
+        chosen[bit.target] = choice
         return choice
 
     def observers(self, bit: BitRef, modes: Modes,
