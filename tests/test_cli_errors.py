@@ -150,6 +150,14 @@ def test_a_missing_bsdl_file_is_reported_once(board_dir: Path) -> None:
     assert len(re.findall(r": error: ", stderr)) == 1, stderr
 
 
+def test_a_board_file_where_a_bsdl_file_belongs(board_dir: Path) -> None:
+    name = _board_with(board_dir, "board_as_bsdl.yaml", "bsdl/rc4_link.bsd", "irrigation.yaml")
+    done = run(board_dir, "inspect", name)
+    stderr = expect(done, BAD_INPUT, r"^irrigation\.yaml:1:1: error: this file has no entity: it does not "
+                                     r"look like BSDL$")
+    assert len(re.findall(r": error: ", stderr)) == 1, stderr
+
+
 def test_a_bsdl_path_that_is_a_folder(board_dir: Path) -> None:
     name = _board_with(board_dir, "folder_bsdl.yaml", "bsdl/rc4_link.bsd", "bsdl")
     done = run(board_dir, "inspect", name)
