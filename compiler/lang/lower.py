@@ -12,6 +12,8 @@ is the row); being equal, they are shared between rows, which keeps large tables
 
 from __future__ import annotations
 
+from typing import cast
+
 from ..diagnostics import SourceSpan
 from ..ir import (
     ChainScan, Drive, Expect, Program, RegisterRead, RegisterWrite, Step, TapReset, Test, TestItem, Wait,
@@ -87,9 +89,12 @@ def _drive_state(state: dict[str, BitValue], made: dict[str, tuple[BitValue, str
                  shared: dict[tuple, Drive | Expect], scope: Scope,
                  modes_key: tuple[tuple[str, str], ...], modes: dict[str, str]) -> tuple[Drive, ...]:
     drives = []
+    chosen = scope.driver_choices(modes_key)
     for key, entry in state.items():
         bit, value, span = entry
-        driver = scope.choose_driver(bit, modes_key, modes)
+        found = chosen.get(bit.target, _UNCHOSEN)
+        driver = (scope.choose_driver(bit, modes_key, modes) if found is _UNCHOSEN
+                  else cast("str | None", found))
         cached = made.get(key)
         if cached is not None and cached[0] is entry and cached[1] == driver:
             drives.append(cached[2])
@@ -105,6 +110,9 @@ def _drive_state(state: dict[str, BitValue], made: dict[str, tuple[BitValue, str
         drives.append(drive)
     drives.sort(key=_target)
     return tuple(drives)
+
+
+_UNCHOSEN: object = object()  # a driver not chosen yet under these modes
 
 
 def _expect(shared: dict[tuple, Drive | Expect], target: str, is_pin: bool, value: str,
