@@ -50,6 +50,11 @@ class MisplacedKind:
     kind: str
     offset: int  # where the text gives itself away
 
+    @property
+    def hint(self) -> str:
+        """Where a file of this kind belongs."""
+        return _HINTS[self.kind]
+
 
 def misplaced_kind(text: str, expected: str) -> MisplacedKind | None:
     """The other kind `text` looks like, or None when it bears the expected kind's mark or none.
@@ -78,4 +83,4 @@ def misplaced_kind_error(file: str, text: str, expected: str) -> Diagnostic | No
         return None
     span = SourceSpan.at_offset(file, text, found.offset)
     return Diagnostic("error", f"this looks like {found.kind}, not {expected}", span,
-                      hint=_HINTS[found.kind])
+                      hint=found.hint)

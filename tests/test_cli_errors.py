@@ -232,6 +232,15 @@ def test_a_program_naming_a_missing_board(work: Path) -> None:
     caret_under(stderr, 'board "nowhere.yaml"', "board")
 
 
+def test_an_included_bsdl_file_is_one_error_at_the_include(board_dir: Path) -> None:
+    (board_dir / "includes_bsdl.loom").write_text('board "irrigation.yaml"\ninclude "bsdl/rc4_ctrl.bsd"\n')
+    done = run(board_dir, "check", "includes_bsdl.loom")
+    stderr = expect(done, FAILED, r"^includes_bsdl\.loom:2:1: error: included file bsdl/rc4_ctrl\.bsd looks "
+                                  r"like a BSDL file, not a test program$")
+    caret_under(stderr, 'include "bsdl/rc4_ctrl.bsd"', "include")
+    assert len(re.findall(r": error: ", stderr)) == 1, stderr
+
+
 def test_a_syntax_error_at_the_end_of_the_file_points_at_the_last_line(board_dir: Path) -> None:
     (board_dir / "cut.loom").write_text('board "irrigation.yaml"\ntest t "t" {\n    step s {\n'
                                         "        drive MUX_SEL = 1")

@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Callable
 
 from ..diagnostics import Diagnostics
+from ..file_kinds import PROGRAM, misplaced_kind
 from . import ast
 from .parser import parse_file
 
@@ -67,7 +68,16 @@ def expand_includes(root: ast.Program, root_path: str | Path, diagnostics: Diagn
                 diagnostics.error(f"cannot read included file {item.path}", item.span,
                                   hint=f"looked for {shown} (paths are relative to the including file)")
                 continue
-            included = reader(target, diagnostics, shown)
+            parsed = Diagnostics(sources=diagnostics.sources)
+            included = reader(target, parsed, shown)
+            misplaced = None
+            if parsed.has_errors() and shown in parsed.sources:
+                misplaced = misplaced_kind(parsed.sources[shown], PROGRAM)
+            if misplaced is not None:
+                diagnostics.error(f"included file {item.path} looks like {misplaced.kind}, not a test "
+                                  "program", item.span, hint=misplaced.hint)
+            else:
+                diagnostics.extend(parsed.items)
             if included is None:
                 done.add(target)
                 continue
