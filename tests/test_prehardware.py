@@ -293,3 +293,23 @@ def test_verify_refuses_a_shift_file_without_preload(tmp_path: Path) -> None:
     assert re.search(r"edited\.json: error: \[no_preload\] record \d+ \(IR scan\): U1 enters EXTEST but "
                      r"its boundary register was not loaded since Test-Logic-Reset", result.stderr)
     assert "Traceback" not in result.stderr
+
+
+@pytest.mark.parametrize("body, code, pattern", [
+    # A BC_1 output cell captures the system logic side under EXTEST: unknown, so the pin cannot
+    # be checked there (IEEE Std 1149.1-2001 Annex B, BC_1: every capture from the parallel input).
+    ("    U2 EXTEST\n    step s {\n        expect U2.VOUT(0) = 1\n    }\n", "cannot_capture",
+     r"U2\.VOUT\(0\) has no boundary cell that captures it"),
+    # U2 in SAMPLE does not drive its pins: its own logic does.
+    ("    U2 SAMPLE\n    step s {\n        drive U2.VOUT(0) = 1\n    }\n", "not_driving_mode",
+     r"U2\.VOUT\(0\) cannot be driven in this step"),
+])
+def test_language_errors_carry_the_check_names(tmp_path: Path, body: str, code: str, pattern: str) -> None:
+    from scanloom.diagnostics import ScanloomError
+
+    path = write_program(tmp_path, f'test t "t" {{\n{body}}}\n')
+    with pytest.raises(ScanloomError) as info:
+        load_program(path, Diagnostics())
+    found = [d for d in info.value.diagnostics if d.code == code]
+    assert found and re.match(pattern, found[0].message), [(d.code, d.message) for d in info.value.diagnostics]
+    assert found[0].span.line == 6

@@ -458,7 +458,7 @@ class _TestChecker:
         if not failing:
             return
         self.diag.error(self.cannot_drive_message(signal, failing, len(bits)), signal.span,
-                        hint=self.drive_hint(failing[0], modes))
+                        hint=self.drive_hint(failing[0], modes), code="not_driving_mode")
 
     def cannot_drive_message(self, signal: ast.Signal, failing: list[BitRef], width: int) -> str:
         names = _names(failing)
@@ -510,7 +510,7 @@ class _TestChecker:
                            f"on {bit.target} cannot be checked")
             else:
                 message = f"{bit.target} is not captured by {ref} in {modes[ref]}"
-            self.diag.error(message, signal.span)
+            self.diag.error(message, signal.span, code="cannot_capture")
             return
         of = f" ({len(failing)} of {len(bits)} bits of {signal_text(signal)})" if len(bits) > 1 else ""
         could = self.scope.could_observe(bit)
@@ -520,7 +520,7 @@ class _TestChecker:
         else:
             hint = f"no scan device on {bit.target} has a cell that captures it"
         self.diag.error(f"no device in a capturing mode observes {_names(failing)}{of}",
-                        signal.span, hint=hint)
+                        signal.span, hint=hint, code="cannot_capture")
 
     # ---- register access --------------------------------------------------------------------
     def register_accesses(self, accesses: list[tuple[ast.Read | ast.Write, str]],
