@@ -90,22 +90,28 @@ def test_a_folder_instead_of_a_file_is_a_usage_error(work: Path, command: tuple[
     expect(done, BAD_INPUT, r"^Error: Invalid value for '.*': File 'folder' is a directory\.$")
 
 
-# ---------------------------------------------------------------------------- inspect
+@pytest.mark.parametrize("command, name, code, pattern", [
+    ("inspect", "empty.yaml", BAD_INPUT, r"^empty\.yaml:1:1: error: the board file must be a YAML mapping$"),
+    ("check", "empty.loom", FAILED, r"^empty\.loom:1:1: error: the program names no board$"),
+    ("verify", "empty.json", BAD_INPUT, r"^empty\.json:1:1: error: not valid JSON: Expecting value$"),
+])
+def test_an_empty_file(work: Path, command: str, name: str, code: int, pattern: str) -> None:
+    (work / name).write_text("")
+    expect(run(work, command, name), code, pattern)
 
-def test_inspect_an_empty_board_file(work: Path) -> None:
-    (work / "empty.yaml").write_text("")
-    done = run(work, "inspect", "empty.yaml")
-    expect(done, BAD_INPUT, r"^empty\.yaml:1:1: error: the board file must be a YAML mapping$")
 
-
-def test_inspect_binary_garbage_points_at_the_first_control_character(work: Path) -> None:
-    garbage(work / "noise.yaml")
-    done = run(work, "inspect", "noise.yaml")
-    stderr = expect(done, BAD_INPUT, r"^noise\.yaml:1:\d+: error: this looks like binary data, "
-                                     r"not a board file$")
-    # Control characters are shown as `?`, so the terminal is not disturbed.
+@pytest.mark.parametrize("command, kind", [("inspect", "a board file"), ("check", "a test program"),
+                                           ("fmt", "a test program"), ("verify", "a shift file")])
+def test_binary_garbage_is_named_as_such(work: Path, command: str, kind: str) -> None:
+    garbage(work / "noise.bin")
+    done = run(work, command, "noise.bin")
+    stderr = expect(done, BAD_INPUT, rf"^noise\.bin:1:\d+: error: this looks like binary data, not {kind}$")
+    assert "syntax error" not in stderr and "not valid" not in stderr
+    # Control characters of the shown line are printed as `?`, so the terminal is not disturbed.
     assert not re.search("[\x00-\x08\x0b-\x1f\x7f]", stderr)
 
+
+# ---------------------------------------------------------------------------- inspect
 
 def test_inspect_a_bsdl_file_says_what_it_is(board_dir: Path) -> None:
     done = run(board_dir, "inspect", "bsdl/rc4_ctrl.bsd")
@@ -184,20 +190,6 @@ def test_inspect_an_unknown_option(board_dir: Path) -> None:
 
 
 # ---------------------------------------------------------------------------- check
-
-def test_check_an_empty_program(work: Path) -> None:
-    (work / "empty.loom").write_text("")
-    done = run(work, "check", "empty.loom")
-    expect(done, FAILED, r"^empty\.loom:1:1: error: the program names no board$")
-
-
-def test_check_binary_garbage_is_bad_input(work: Path) -> None:
-    garbage(work / "noise.loom")
-    done = run(work, "check", "noise.loom")
-    stderr = expect(done, BAD_INPUT, r"^noise\.loom:1:\d+: error: this looks like binary data, "
-                                     r"not a test program$")
-    assert "syntax error" not in stderr
-
 
 @pytest.mark.parametrize("path, line, shown, kind", [
     ("bsdl/rc4_ctrl.bsd", 23, "entity RC4_CTRL is", "a BSDL file"),
@@ -387,12 +379,6 @@ def _shift_data(board_dir: Path) -> dict:
 def _write(work: Path, name: str, data: object) -> str:
     (work / name).write_text(json.dumps(data, indent=1))
     return name
-
-
-def test_verify_an_empty_file(work: Path) -> None:
-    (work / "empty.json").write_text("")
-    done = run(work, "verify", "empty.json")
-    expect(done, BAD_INPUT, r"^empty\.json:1:1: error: not valid JSON: Expecting value$")
 
 
 def test_verify_a_truncated_file(board_dir: Path, work: Path) -> None:
