@@ -50,11 +50,11 @@ def compiled(board, text: str):
     diagnostics = Diagnostics()
     program = compile_source(text, "generated.loom", board, diagnostics)
     assert not diagnostics.items, diagnostics.render()
-    report = check_program(program, board)
-    assert not report.findings, [f.message for f in report.findings]
     scan = schedule(program, board)
-    assert not check_preload(scan)
     cycles = lay_out_cycles(scan)
+    report = check_program(program, board, scan, cycles)  # every check, records and cycles too
+    assert not report.findings, [f.message for f in report.findings]
+    assert not check_preload(scan)
     assert replay(scan, cycles).ok
     result = VirtualBoard(build_electrical(board, Diagnostics()), scan, cycles).run()
     assert result.passed, (result.differing.count(), result.undefined.count())
@@ -331,6 +331,33 @@ def test_generate_command_refuses_bad_input(tmp_path):
     assert missing.exit_code == 2
     usage = runner.invoke(main, ["generate", str(DEMO), "--codes", "gray", "-o", str(tmp_path / "x.loom")])
     assert usage.exit_code == 2 and "gray" in usage.output
+
+
+def test_a_vector_longer_than_the_fight_limit_says_why_it_is_meant():
+    # 600 output cells and their control cell, 600 input cells, a 1 MHz TCK: one vector stands
+    # for a 1201-bit scan and the 8 TAP clocks around it, 1.21 ms, above the default 1 ms fight
+    # limit: a short between neighbouring outputs driven apart would fight that long.
+    from dataclasses import replace
+
+    width = 600
+    cells = [(i, "BC_1", f"Q({i})", "OUTPUT3", "0", width, 0, "Z") for i in range(width)]
+    source = make_device("SRC", 3, cells + [(width, "BC_1", "*", "CONTROL", "0")])
+    sink = make_device("SNK", 3, [(i, "BC_1", f"A({i})", "INPUT", "X") for i in range(width)])
+    slow = [replace(d, tap=replace(d.tap, max_tck_hz=1e6),
+                    pin_maps={"P": {f"Q({i})": (str(i + 1),) for i in range(width)}}, pin_map_name="P")
+            for d in (source, sink)]
+    board = make_board([("U1", slow[0]), ("U2", slow[1])],
+                       {f"W{i}": [f"U1.Q({i})", f"U2.A({i})"] for i in range(width)})
+    text = generate_program(board, "b.yaml", "interconnect", "counting").text
+    assert "tck 1 MHz" in text
+    assert re.search(r'^    allow short_fight "each vector stands for one scan of 1201 bits, 1\.21 ms at 1 MHz',
+                     text, re.M)
+    diagnostics = Diagnostics()
+    program = compile_source(text, "g.loom", board, diagnostics)
+    scan = schedule(program, board)
+    report = check_program(program, board, scan, lay_out_cycles(scan))
+    assert not report.findings and report.allowed  # the fights are named, and allowed for a reason
+    assert all(f.check == "short_fight" for f, _ in report.allowed)
 
 
 def test_no_interconnect_on_a_board_without_scan_to_scan_nets():

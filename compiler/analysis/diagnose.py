@@ -17,6 +17,7 @@ from pathlib import Path
 
 from ..backend.cycle_stream import CycleStream
 from ..backend.records import ScanProgram
+from ..collector import collector_paused
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError
 from ..models.board import Board, PinRef
 from .capture_log import CaptureLog, read_capture
@@ -125,12 +126,13 @@ def diagnose_files(shift_file: str | Path, capture_file: str | Path) -> Diagnosi
 
 def diagnose_capture(program: ScanProgram, cycles: CycleStream, board: Board, capture: CaptureLog,
                      shift_file: str = "", pins: BoardPins | None = None) -> Diagnosis:
-    comparison = compare_capture(program, cycles, capture, board)
-    if comparison.passed:
-        return Diagnosis(shift_file, capture.path, comparison.compared, (), (), 0)
-    pins = pins if pins is not None else BoardPins(board)
-    observations = StateObservations(program, cycles, board, pins, capture)
-    return _Diagnoser(board, pins, observations, comparison, shift_file, cycles).run()
+    with collector_paused():  # acyclic records only: no collector passes over a large heap
+        comparison = compare_capture(program, cycles, capture, board)
+        if comparison.passed:
+            return Diagnosis(shift_file, capture.path, comparison.compared, (), (), 0)
+        pins = pins if pins is not None else BoardPins(board)
+        observations = StateObservations(program, cycles, board, pins, capture)
+        return _Diagnoser(board, pins, observations, comparison, shift_file, cycles).run()
 
 
 class _Diagnoser:
@@ -168,12 +170,18 @@ class _Diagnoser:
             # A net shorted onto a TAP signal garbles scans only while the net holds the value
             # that wins the short, and what it garbles may look like net faults: such suspects
             # that could have struck in time are played on the virtual board.
+            net_faults = [self.net_fault(e) for e in explanations]
+            if not self.checker.affordable(1) and explanations and not unexplained:
+                faults += net_faults  # no suspect could be played: the nets' explanations stand
+                for ref, found in identities.items():
+                    faults.append(self.identity_fault(ref, found))
+                return Diagnosis(self.shift_file, self.comparison.capture.path,
+                                 self.comparison.compared, bits, tuple(faults), unexplained)
             failing_nets = {b.net for b in bits if b.net}
             finding = locate_chain_break(self.board, list(bits))
             ordered = sorted(finding.suspects,
                              key=lambda spec: not any(net in spec.split(",")[0] for net in failing_nets))
             finding = self.confirm(replace(finding, suspects=tuple(ordered)), opens=False)
-            net_faults = [self.net_fault(e) for e in explanations]
             # One plain fault of one or two nets that reproduces every failing bit for sure.
             simple = (not unexplained and len(explanations) == 1 and not explanations[0].unknown
                       and len(explanations[0].group[0].nets) <= 2)

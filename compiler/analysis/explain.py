@@ -17,6 +17,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from bitarray import bitarray
+
 from ..models.board import PinRef
 from ..sim.faults import adjacent_pin_pairs
 from .fault_model import Candidate, Fit, Predictor, open_net, open_pin, short, stuck_at
@@ -65,7 +67,7 @@ class _Explainer:
                 state += 1
         self.net_order = {name: i for i, name in enumerate(self.board.nets)}
         self._adjacent: dict[int, dict[str, set[str]]] = {}
-        self._codes: dict[tuple[int, int], list[Node]] | None = None
+        self._cell_pins: dict[int, dict[int, tuple[PinRef, ...]]] = {}
 
     # ---- partners ------------------------------------------------------------------------
     def node_of_pin(self, pin: PinRef) -> Node | None:
@@ -92,23 +94,52 @@ class _Explainer:
                     found[other] = None
         return list(found)
 
-    def code_index(self) -> dict[tuple[int, int], list[Node]]:
-        """Nodes by the code their cells were expected to read: (states compared, values)."""
-        if self._codes is None:
-            index: dict[tuple[int, int], list[Node]] = {}
-            for node in self.pins.nodes:
-                for pin in self.pins.node_pins[node]:
-                    for cell in self.obs.cells_of(pin):
-                        bucket = index.setdefault((cell.compared, cell.expected), [])
-                        if not bucket or bucket[-1] != node:
-                            bucket.append(node)
-            self._codes = index
-        return self._codes
-
     def code_partners(self, cell: CellObservation) -> list[Node]:
+        """Nodes whose cells were expected to read what this cell read, in the same captures
+        (the other net of a short that won, or was AND/OR-ed into this one).
+
+        Searched bit-parallel per device: each capture's row of compared and expected bits
+        narrows the cells that match in every state at once.
+        """
         if cell.known != cell.compared:
             return []
-        return self.code_index().get((cell.compared, cell.value), [])
+        found: dict[Node, None] = {}
+        states = self.obs.states
+        for idx, device in enumerate(states.devices):
+            length = device.length
+            if not length:
+                continue
+            match = bitarray(length, endian="little")
+            match.setall(1)
+            for state in range(states.count):
+                row = slice(state * length, (state + 1) * length)
+                compared = device.compare_rows[row]
+                if (cell.compared >> state) & 1:
+                    match &= compared
+                    match &= device.expected_rows[row] if (cell.value >> state) & 1 \
+                        else ~device.expected_rows[row]
+                else:
+                    match &= ~compared
+                if not match.any():
+                    break
+            for number in match.search(1):
+                for pin in self.cell_pins(idx).get(number, ()):
+                    node = self.node_of_pin(pin)
+                    if node is not None:
+                        found[node] = None
+        return list(found)
+
+    def cell_pins(self, idx: int) -> dict[int, tuple[PinRef, ...]]:
+        table = self._cell_pins.get(idx)
+        if table is None:
+            ref = self.pins.refs[idx]
+            collected: dict[int, list[PinRef]] = {}
+            for cell in self.pins.tables[idx].device.cells:
+                if cell.port is not None:
+                    collected.setdefault(cell.number, []).append(PinRef(ref, cell.port))
+            table = {number: tuple(found) for number, found in collected.items()}
+            self._cell_pins[idx] = table
+        return table
 
     # ---- candidates ----------------------------------------------------------------------
     def candidates(self) -> list[Candidate]:

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
 
+from ..collector import collector_paused
 from ..diagnostics import Diagnostic, ScanloomError
 from ..models.board import Board
 from .codes import CODE_KINDS
@@ -60,7 +61,16 @@ def board_reference(board_file: str | Path, program_file: str | Path) -> str:
 
 def generate_program(board: Board, board_ref: str, kind: str = "all",
                      codes: str = "counting", pins: BoardPins | None = None) -> GeneratedProgram:
-    """Write the program for `board`; `board_ref` is the board path as the program names it."""
+    """Write the program for `board`; `board_ref` is the board path as the program names it.
+
+    The plan's records are acyclic, so the cycle collector is paused while they are built.
+    """
+    with collector_paused():
+        return _generate(board, board_ref, kind, codes, pins)
+
+
+def _generate(board: Board, board_ref: str, kind: str, codes: str,
+              pins: BoardPins | None) -> GeneratedProgram:
     if kind not in GENERATE_KINDS:
         raise ValueError(f"unknown kind {kind!r}")
     if codes not in CODE_KINDS:
@@ -84,7 +94,7 @@ def generate_program(board: Board, board_ref: str, kind: str = "all",
                     "another pin: there is no interconnect to test",
                     hint="scanloom inspect lists the nets by kind")])
         else:
-            section, interconnect = interconnect_sections(pins, plan, codes, taken)
+            section, interconnect = interconnect_sections(pins, plan, codes, taken, _slowest_hz(board))
             body += section
     header = _header(board, board_ref, kind, codes, plan, interconnect)
     text = "\n".join(header + body).rstrip("\n") + "\n"
@@ -146,11 +156,17 @@ def _not_coded(board: Board, plan: InterconnectPlan) -> list[str]:
     return lines + [""]
 
 
-def _slowest_tck(board: Board) -> str | None:
+def _slowest_hz(board: Board) -> float | None:
+    """The TCK the program declares: the lowest TAP_SCAN_CLOCK maximum of the chain, if any."""
     limits = [entry.device.tap.max_tck_hz for entry in board.chain if entry.device.tap.max_tck_hz]
-    if not limits:
+    return min(limits) if limits else None
+
+
+def _slowest_tck(board: Board) -> str | None:
+    slowest = _slowest_hz(board)
+    if slowest is None:
         return None
-    hertz = Fraction(min(limits)).limit_denominator(1000)
+    hertz = Fraction(slowest).limit_denominator(1000)
     for unit, scale in (("MHz", 10**6), ("kHz", 10**3), ("Hz", 1)):
         value = hertz / scale
         if value >= 1 and (value * 1000).denominator == 1:

@@ -21,6 +21,7 @@ from .codes import CodeSet, make_codes, vector_count
 from .interconnect_plan import InterconnectPlan, Node, Round
 from .loom_text import INDENT, comment_block, group_lines, hex_literal, is_name, quoted, \
     table_lines, unique_name, wrap_words
+from ..lang.header import DEFAULT_FIGHT_LIMIT_S
 from .scan_pins import BoardPins, OutputPin
 
 __all__ = ["InterconnectTest", "interconnect_sections", "CODE_PAPERS"]
@@ -47,22 +48,43 @@ class InterconnectTest:
     nodes: tuple[Node, ...]  # coded nodes, code i for nodes[i]
 
 
-def interconnect_sections(pins: BoardPins, plan: InterconnectPlan, kind: str,
-                          taken: set[str]) -> tuple[list[str], list[InterconnectTest]]:
-    """The program text of every round (groups, then the test) and what each test holds."""
+def interconnect_sections(pins: BoardPins, plan: InterconnectPlan, kind: str, taken: set[str],
+                          tck_hz: float | None = None) -> tuple[list[str], list[InterconnectTest]]:
+    """The program text of every round (groups, then the test) and what each test holds.
+
+    `tck_hz` is the TCK the program declares: where one vector lasts longer than the default
+    fight limit, each test says why that is intended (`allow short_fight`).
+    """
     lines: list[str] = []
     tests: list[InterconnectTest] = []
     several = len(plan.rounds) > 1
+    fight = _vector_seconds(pins, plan, tck_hz)
     for rnd in plan.rounds:
         name = unique_name(f"interconnect_{rnd.number}" if several else "interconnect", taken)
-        section, test = _round_text(pins, plan, rnd, kind, name, taken)
+        section, test = _round_text(pins, plan, rnd, kind, name, taken, fight)
         lines += section
         tests.append(test)
     return lines, tests
 
 
+def _vector_seconds(pins: BoardPins, plan: InterconnectPlan,
+                    tck_hz: float | None) -> tuple[float, int, float] | None:
+    """(seconds, scan bits, TCK) a vector stands when that is near the 1 ms fight limit, else None.
+
+    A vector stands from one Update-DR to the next: one scan of the whole chain (every device
+    in EXTEST shifts its boundary register, the others their bypass bit) plus the few TAP
+    clocks between the scans.
+    """
+    if tck_hz is None:
+        return None
+    extest = set(plan.extest)
+    bits = sum(entry.device.boundary_length if entry.ref in extest else 1 for entry in pins.board.chain)
+    seconds = (bits + 8) / tck_hz
+    return (seconds, bits, tck_hz) if seconds > 0.5 * DEFAULT_FIGHT_LIMIT_S else None
+
+
 def _round_text(pins: BoardPins, plan: InterconnectPlan, rnd: Round, kind: str, name: str,
-                taken: set[str]) -> tuple[list[str], InterconnectTest]:
+                taken: set[str], fight: tuple[float, int, float] | None) -> tuple[list[str], InterconnectTest]:
     nodes = tuple(rnd.drivers)
     codes = make_codes(kind, len(nodes))
     vectors = vector_count(kind, len(nodes))
@@ -106,6 +128,11 @@ def _round_text(pins: BoardPins, plan: InterconnectPlan, rnd: Round, kind: str, 
     out += comment_block(_test_comment(kind, plan, rnd), INDENT)
     out.append(INDENT + f"{', '.join(plan.extest)} EXTEST"
                + "  # every device on a tested net; outputs not driven stay disabled")
+    if fight is not None:
+        seconds, bits, hertz = fight
+        out.append(INDENT + 'allow short_fight "each vector stands for one scan of '
+                   + f'{bits} bits, {seconds * 1e3:.3g} ms at {hertz / 1e6:g} MHz: neighbouring nets driven '
+                   + 'apart fight that long only where a short joins them, which this test finds"')
     out += park
     if nodes:
         out += _vector_table(codes, columns)

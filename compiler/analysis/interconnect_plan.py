@@ -89,7 +89,7 @@ class _Planner:
         two_state: dict[Node, set[int]] = {}
         drivers: dict[Node, set[int]] = {}
         for output in self.pins.outputs.values():
-            node = self.node_of_pin(output.pin)
+            node = output.node
             if node is None:
                 continue
             drivers.setdefault(node, set()).add(output.device)
@@ -153,8 +153,9 @@ class _Planner:
                 break
             extest = needed
         testable = tuple(node for node in nodes if any(node in r.drivers for r in rounds))
+        tested = set(testable)
         for node in nodes:
-            if node not in testable:
+            if node not in tested:
                 self.skip("no round can drive it alone without fighting another driver", node[0])
         refs = tuple(ref for idx, ref in enumerate(self.pins.refs) if idx in extest)
         return InterconnectPlan(tuple(rounds), refs, testable, self.skipped, self.held)
@@ -164,27 +165,27 @@ class _Planner:
                ) -> tuple[list[Round], set[Node]]:
         pins = self.pins
         candidate = set(nodes)
-        pending: dict[tuple[Node, PinRef], None] = {}
+        # (node, driver) pairs still to drive, keyed by the outputs' identities: boards have
+        # tens of thousands, and a pin's own hash is a Python-level call.
+        pending: dict[int, OutputPin] = {}
         for node in nodes:
             for output in pins.node_outputs(node):
                 if output.device in extest:
-                    pending[(node, output.pin)] = None
+                    pending[id(output)] = output
         used: dict[Node, OutputPin] = {}
         rounds: list[Round] = []
         driven_any: set[Node] = set()
-        dropped: set[tuple[Node, PinRef]] = set()
         while pending:
             state = _RoundState(self, extest)
             state.always_on()
             for node, value in self.held.items():
                 state.drive_constant(node, value)
-            covered = [pair for pair in pending if state.try_pin(pins.outputs[pair[1]], candidate)]
+            covered = [key for key, output in pending.items() if state.try_pin(output, candidate)]
             if not covered:
                 # The first pair can never drive alone this way: give it up and say so.
-                pair = next(iter(pending))
-                pending.pop(pair)
-                dropped.add(pair)
-                self.skip("no round can drive it alone without fighting another driver", str(pair[1]))
+                key = next(iter(pending))
+                self.skip("no round can drive it alone without fighting another driver",
+                          str(pending.pop(key).pin))
                 continue
             for node in nodes:
                 if node not in state.node_driver:
@@ -199,8 +200,8 @@ class _Planner:
                     for output in pins.node_outputs(node):
                         if output.device in extest and state.try_pin(output, candidate):
                             break
-            for pair in covered:
-                pending.pop(pair, None)
+            for key in covered:
+                pending.pop(key, None)
             finished = state.finish(len(rounds) + 1, candidate, len(covered))
             for node, output in finished.drivers.items():
                 used[node] = output
@@ -222,13 +223,13 @@ class _RoundState:
 
     def can_enable(self, group: Group) -> bool:
         for member in self.pins.group_members.get(group, ()):
-            node = self.planner.node_of_pin(member.pin)
+            node = member.node
             if node is None:
                 continue
             if node in self.planner.never:
                 return False
             other = self.node_driver.get(node)
-            if other is not None and other.pin != member.pin:
+            if other is not None and other is not member:
                 return False
             if node in self.pins.logic_driven:
                 return False  # a logic output drives it: a scan driver would fight
@@ -237,7 +238,7 @@ class _RoundState:
     def enable(self, group: Group) -> None:
         self.groups[group] = None
         for member in self.pins.group_members.get(group, ()):
-            node = self.planner.node_of_pin(member.pin)
+            node = member.node
             if node is not None:
                 self.node_driver[node] = member
 
@@ -263,12 +264,12 @@ class _RoundState:
 
     def try_pin(self, output: OutputPin, candidate: set[Node]) -> bool:
         """Enable the output's group if nothing fights; True when the output drives its node."""
-        node = self.planner.node_of_pin(output.pin)
+        node = output.node
         if node is None or output.device not in self.extest:
             return False
         current = self.node_driver.get(node)
         if current is not None:
-            return current.pin == output.pin
+            return current is output
         group = output.enable_group
         if group in self.groups or not self.can_enable(group):
             return False

@@ -13,7 +13,7 @@ per-device tables computed once (`backend.images.device_tables`).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
 
 from ..backend.images import DeviceTables, device_tables
@@ -39,6 +39,7 @@ class OutputPin:
     disable_value: int | None
     disable_result: str
     safe: str  # "0" or "1" (a BSDL X taken as 0, as the images do)
+    node: tuple[str, ...] | None = field(default=None, compare=False)  # its electrical node
 
     @property
     def two_state(self) -> bool:
@@ -80,16 +81,21 @@ class BoardPins:
         self.nodes: tuple[tuple[str, ...], ...] = tuple(dict.fromkeys(self.node_of_net.values()))
         self.outputs: dict[PinRef, OutputPin] = {}
         self.observers: dict[PinRef, tuple[ObservingCell, ...]] = {}
+        self._node_outputs: dict[tuple[str, ...], list[OutputPin]] = {}
+        self._node_observers: dict[tuple[str, ...], list[ObservingCell]] = {}
         memo: dict[tuple[int, str, str, bool], bool] = {}
         for net in board.nets.values():
+            node = self.node_of_net[net.name]
             for pin in net.pins:
                 idx = self.index.get(pin.ref)
-                if idx is None or pin in self.outputs or pin in self.observers:
+                if idx is None:  # a part's pin; the board loader puts a pin on one net only
                     continue
                 tables = self.tables[idx]
                 driver = tables.drivers.get(pin.port)
                 if driver is not None:
-                    self.outputs[pin] = _output(pin, idx, driver)
+                    output = _output(pin, idx, driver, node)
+                    self.outputs[pin] = output
+                    self._node_outputs.setdefault(node, []).append(output)
                 cells = []
                 for cell in tables.observers.get(pin.port, ()):
                     released = _captures(memo, idx, tables, cell, False)
@@ -100,13 +106,22 @@ class BoardPins:
                                                    released, driving))
                 if cells:
                     self.observers[pin] = tuple(cells)
-        logic_outputs = {PinRef(part.ref, out) for part in board.parts.values()
-                         for out in (*part.logic, *part.enables)}
-        self.logic_driven: frozenset[tuple[str, ...]] = frozenset(
-            self.node_of_net[name] for pin, name in board.net_of_pin.items() if pin in logic_outputs)
-        self.logic_touched: frozenset[tuple[str, ...]] = frozenset(
-            self.node_of_net[name] for pin, name in board.net_of_pin.items()
-            if pin.ref in board.parts and board.parts[pin.ref].is_logic)
+                    self._node_observers.setdefault(node, []).extend(cells)
+        driven: set[tuple[str, ...]] = set()
+        touched: set[tuple[str, ...]] = set()
+        net_of_pin = board.net_of_pin if any(part.is_logic for part in board.parts.values()) else {}
+        for part in board.parts.values():
+            if not part.is_logic:
+                continue
+            outputs = set(part.logic) | set(part.enables)
+            for name in part.pins:
+                net = net_of_pin.get(PinRef(part.ref, name))
+                if net is not None:
+                    touched.add(self.node_of_net[net])
+                    if name in outputs:
+                        driven.add(self.node_of_net[net])
+        self.logic_driven: frozenset[tuple[str, ...]] = frozenset(driven)  # a logic output on it
+        self.logic_touched: frozenset[tuple[str, ...]] = frozenset(touched)  # any logic pin on it
 
     @cached_property
     def node_pins(self) -> dict[tuple[str, ...], tuple[PinRef, ...]]:
@@ -115,10 +130,10 @@ class BoardPins:
         return {node: tuple(pin for net in node for pin in nets[net].pins) for node in self.nodes}
 
     def node_outputs(self, node: tuple[str, ...]) -> tuple[OutputPin, ...]:
-        return tuple(self.outputs[pin] for pin in self.node_pins[node] if pin in self.outputs)
+        return tuple(self._node_outputs.get(node, ()))
 
     def node_observers(self, node: tuple[str, ...]) -> tuple[ObservingCell, ...]:
-        return tuple(cell for pin in self.node_pins[node] for cell in self.observers.get(pin, ()))
+        return tuple(self._node_observers.get(node, ()))
 
     @cached_property
     def group_members(self) -> dict[tuple[int, int | str], tuple[OutputPin, ...]]:
@@ -148,11 +163,11 @@ def board_pins(board: Board) -> BoardPins:
     return BoardPins(board)
 
 
-def _output(pin: PinRef, idx: int, cell: BoundaryCell) -> OutputPin:
+def _output(pin: PinRef, idx: int, cell: BoundaryCell, node: tuple[str, ...]) -> OutputPin:
     control = cell.control_cell if cell.disable_value is not None else None
     return OutputPin(pin, idx, cell.number, cell.function, control,
                      cell.disable_value if control is not None else None,
-                     cell.disable_result or "Z", "1" if cell.safe == "1" else "0")
+                     cell.disable_result or "Z", "1" if cell.safe == "1" else "0", node)
 
 
 def _captures(memo: dict[tuple[int, str, str, bool], bool], idx: int, tables: DeviceTables,
