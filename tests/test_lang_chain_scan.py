@@ -170,6 +170,20 @@ def test_pending_responses_are_flushed_before_the_raw_scan():
     assert "flush" in purposes[:chain]
     assert replay(scan, lay_out_cycles(scan)).ok
 
+def test_a_scan_shorter_than_the_chain_is_listed_as_far_as_it_shifts(tmp_path):
+    from scanloom.backend.writers.listing import render_listing
+
+    # After reset: A's 32-bit identification register (nearest TDI) and B's bypass bit. Four
+    # bits out: B's bypass 0, then A's IDCODE bits 0..2 (bit 0 of an IDCODE is always 1).
+    _, scan = _schedule('test t "t" {\n    reset tap\n    scan chain 4 bits in 0 expect 0bXX10\n}\n')
+    record = next(r for r in scan.records if r.purpose == "chain")
+    assert record.length == 4 and record.mask.to01() == "1100"
+    listing = render_listing(scan, lay_out_cycles(scan), tmp_path)
+    assert "      scan bit 0: expect 0  B BYPASS bit 0" in listing
+    assert "      scan bit 1: expect 1  A DEVICE_ID bit 0" in listing
+    assert "scan bit 4" not in listing
+
+
 # ------------------------------------------------------------------------------------ formatter
 
 

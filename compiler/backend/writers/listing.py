@@ -169,13 +169,16 @@ def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
     tdo, mask = bitarray(record.tdo, endian="big"), bitarray(record.mask, endian="big")
     lines: list[str] = []
     for segment in sorted(record.segments, key=lambda s: s.offset):
-        start, stop = segment.offset, segment.offset + segment.length
+        # A raw chain scan shorter than the chain shows only the first registers' bits.
+        start, stop = segment.offset, min(segment.offset + segment.length, record.length)
+        if stop <= start:
+            continue
         window, expected = mask[start:stop], tdo[start:stop]
-        selector = bitarray(2 * segment.length, endian="big")
+        selector = bitarray(2 * (stop - start), endian="big")
         selector[0::2] = window & ~expected
         selector[1::2] = window & expected
-        lines.extend(compress(labels.compared_lines(segment.device, segment.register, start,
-                                                    segment.length), selector))
+        prepared = labels.compared_lines(segment.device, segment.register, start, segment.length)
+        lines.extend(compress(prepared[:2 * (stop - start)], selector))
     # A raw chain scan longer than the chain: the bits past it are TDI bits passing through.
     chain_length = max((s.offset + s.length for s in record.segments), default=0)
     for bit in mask.search(1, chain_length):
