@@ -65,6 +65,7 @@ class _Explainer:
                     self.total.add((cell.device, cell.number, state))
                 mask >>= 1
                 state += 1
+        self.failing_pins = {cell.pin for cell in failing if cell.failing}
         self.net_order = {name: i for i, name in enumerate(self.board.nets)}
         self._adjacent: dict[int, dict[str, set[str]]] = {}
         self._cell_pins: dict[int, dict[int, tuple[PinRef, ...]]] = {}
@@ -219,7 +220,10 @@ class _Explainer:
             # Candidates explaining exactly the same bits are one ambiguity group.
             anchor = best[0].covered & remaining
             group = [fit for fit in best if fit.covered & remaining == anchor]
-            group.sort(key=lambda f: (KIND_ORDER.get(f.candidate.kind, 9), f.candidate.spec))
+            # Equal fits: by kind, then those at a pin whose own cells read wrong (where the
+            # bench sees the symptom), then by name.
+            group.sort(key=lambda f: (KIND_ORDER.get(f.candidate.kind, 9),
+                                      not set(f.candidate.pins) & self.failing_pins, f.candidate.spec))
             nodes = tuple(dict.fromkeys(
                 node for fit in group[:1] for net in fit.candidate.nets
                 for node in [self.pins.node_of_net[net]]))
