@@ -18,7 +18,9 @@ or revision on that position, not a broken chain.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable, Sequence
 
+from ..backend.records import ShiftRecord
 from ..models.board import Board, PinRef
 from ..sim.faults import TAP_SIGNALS, adjacent_pin_pairs, tap_port
 from .failing_bits import PASS_THROUGH, FailingBit
@@ -44,7 +46,8 @@ class ChainFinding:
     exact: tuple[str, ...] = ()  # of them, those that reproduce every failing bit
 
 
-def chain_evidence(bits: tuple[FailingBit, ...], pin_reader) -> list[FailingBit]:  # type: ignore[no-untyped-def]
+def chain_evidence(bits: tuple[FailingBit, ...],
+                   pin_reader: Callable[[FailingBit], bool]) -> list[FailingBit]:
     """Failing bits that no net can change: instruction, bypass, identification and user
     registers, bits passing through the chain, and boundary bits that do not capture a pin."""
     out = []
@@ -82,7 +85,7 @@ def locate_chain_break(board: Board, bits: list[FailingBit],
     located = bool(in_first) and (all(bit.register == "IR" for bit in in_first)
                                   or first_record in after_reset)
     if located:
-        last = max(bit.position for bit in in_first)  # type: ignore[type-var]
+        last = max(bit.position for bit in in_first if bit.position is not None)
         window = [p for p in (last, last + 1) if p < len(chain)]
     else:
         last = None
@@ -99,7 +102,7 @@ def locate_chain_break(board: Board, bits: list[FailingBit],
     return ChainFinding(after, before, first_record, tuple(suspects), located, len(bits))
 
 
-def first_scans_after_reset(records) -> frozenset[int]:  # type: ignore[no-untyped-def]
+def first_scans_after_reset(records: Sequence[ShiftRecord]) -> frozenset[int]:
     """The records that are the first scan after a reset: what they capture is fixed."""
     out = set()
     fresh = False

@@ -21,7 +21,7 @@ from bitarray import bitarray
 
 from ..models.board import PinRef
 from ..sim.faults import adjacent_pin_pairs
-from .fault_model import Candidate, Fit, Predictor, open_net, open_pin, short, stuck_at
+from .fault_model import Candidate, Predictor, open_net, open_pin, short, stuck_at
 from .interconnect_plan import Node
 from .observations import CellObservation, StateObservations
 from .scan_pins import BoardPins

@@ -145,27 +145,25 @@ class _BitNamer:
         scan_bit = cycle - self.starts[where]
         if scan_bit >= record.length:
             return FailingBit(cycle, expected, got, None, None)
-        base = dict(cycle=cycle, expected=expected, got=got, record=index, scan_bit=scan_bit,
-                    purpose=record.purpose, test=record.test, step=record.step)
         offsets, ordered = self.segments(index)
         at = bisect_right(offsets, scan_bit) - 1
         segment = ordered[at] if at >= 0 else None
         if segment is None or scan_bit >= segment.offset + segment.length:
             chain = max((s.offset + s.length for s in ordered), default=0)
-            return FailingBit(**base, register=PASS_THROUGH, bit=scan_bit - chain)  # type: ignore[arg-type]
+            return FailingBit(cycle, expected, got, index, scan_bit, record.purpose, record.test,
+                              record.step, register=PASS_THROUGH, bit=scan_bit - chain)
         bit = scan_bit - segment.offset
         test, step = record.test, record.step
         for check in record.checks:
             if check.device == segment.device and check.register == segment.register:
                 test, step = check.test, check.step or None
                 break
-        base.update(test=test, step=step)
         port = net = None
         pins: tuple[str, ...] = ()
         if segment.register == "BOUNDARY":
             port, net = self.cells.get(segment.device, {}).get(bit, (None, None))
             if port is not None:
                 pins = self.pins_of(segment.device, port)
-        return FailingBit(**base, device=segment.device,  # type: ignore[arg-type]
-                          position=self.positions.get(segment.device), register=segment.register,
-                          bit=bit, port=port, pins=pins, net=net)
+        return FailingBit(cycle, expected, got, index, scan_bit, record.purpose, test, step,
+                          segment.device, self.positions.get(segment.device), segment.register,
+                          bit, port, pins, net)

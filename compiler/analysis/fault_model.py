@@ -16,9 +16,10 @@ cannot say: logic without boundary scan, an update stage not known, drivers figh
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Iterable
 
 from ..models.board import PinRef
-from ..sim.resolve import COMBINE_AND, COMBINE_OR, COMBINE_WIRE, PinDrive, drive_sum, resolve_level
+from ..sim.resolve import COMBINE_AND, COMBINE_OR, COMBINE_WIRE, Level, PinDrive, drive_sum, resolve_level
 from .interconnect_plan import Node
 from .observations import CellObservation, StateObservations
 from .scan_pins import BoardPins
@@ -100,7 +101,7 @@ class Predictor:
             return PinDrive(self.full, self.full)  # logic without boundary scan: not modelled here
         return None
 
-    def level(self, group: FaultGroup):  # type: ignore[no-untyped-def]
+    def level(self, group: FaultGroup) -> Level:
         drives = [d for d in map(self.drive, group.pins) if d is not None]
         total = drive_sum(drives, group.pulls, self.full)
         dominant = self.drive(group.dominant) if group.dominant is not None else None
@@ -153,7 +154,7 @@ def _states(cell: CellObservation, mask: int) -> list[tuple[int, int, int]]:
 # ---- candidates ---------------------------------------------------------------------------
 
 
-def _pulls(pins: BoardPins, nets) -> tuple[str, ...]:  # type: ignore[no-untyped-def]
+def _pulls(pins: BoardPins, nets: Iterable[str]) -> tuple[str, ...]:
     return tuple(pins.board.pulls[net] for net in nets if net in pins.board.pulls)
 
 

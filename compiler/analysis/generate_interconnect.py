@@ -15,7 +15,6 @@ from dataclasses import dataclass
 
 from bitarray import bitarray
 
-from ..diagnostics import Diagnostic, ScanloomError
 from ..models.board import PinRef
 from .codes import CodeSet, make_codes, vector_count
 from .interconnect_plan import InterconnectPlan, Node, Round
@@ -206,8 +205,3 @@ def _vector_table(codes: CodeSet, columns: list[tuple[str, str, list[int], list[
     out += table_lines(INDENT * 2, header, rows)
     out.append(INDENT + "}")
     return out
-
-
-def no_nets_error() -> ScanloomError:
-    return ScanloomError([Diagnostic("error", "the board has no net that a scan device drives and "
-                                     "another scan pin receives: there is no interconnect to test")])

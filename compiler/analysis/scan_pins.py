@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 from ..backend.images import DeviceTables, device_tables
+from ..collector import collector_paused
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, resolve_capture
 from ..models.connectivity import series_groups
@@ -70,6 +71,10 @@ class BoardPins:
     """Drivers, observers and electrical nodes of every net of a board."""
 
     def __init__(self, board: Board) -> None:
+        with collector_paused():  # tens of thousands of small acyclic records
+            self._build(board)
+
+    def _build(self, board: Board) -> None:
         self.board = board
         self.refs = tuple(entry.ref for entry in board.chain)
         self.index = {ref: i for i, ref in enumerate(self.refs)}
@@ -142,17 +147,6 @@ class BoardPins:
         for output in self.outputs.values():
             members.setdefault(output.enable_group, []).append(output)
         return {key: tuple(found) for key, found in members.items()}
-
-    @cached_property
-    def group_cell_count(self) -> dict[tuple[int, int], int]:
-        """How many output cells each control cell enables, board pins or not."""
-        counts: dict[tuple[int, int], int] = {}
-        for idx, tables in enumerate(self.tables):
-            for cell in tables.drivers.values():
-                if cell.control_cell is not None and cell.disable_value is not None:
-                    key = (idx, cell.control_cell)
-                    counts[key] = counts.get(key, 0) + 1
-        return counts
 
     def pulls_of(self, node: tuple[str, ...]) -> set[str]:
         """"up" and/or "down": the board's pull resistors on the node's nets."""
