@@ -74,7 +74,7 @@ def integrity_sections(board: Board, taken: set[str]) -> tuple[list[str], list[I
                      "bit at once (X bits of a BSDL pattern are not compared), then the pattern "
                      "pushed in.")
     lines.append(INDENT + "reset tap")
-    lines += _scan_line(defaults, f"{len(defaults)} bits of registers, then {PATTERN[::-1]} back")
+    lines += _scan_line(defaults, f"{len(defaults)} bits of registers, then the pattern")
     lines.append("}")
     tests.append(IntegrityTest(name, "after_reset", None, len(defaults) + len(PATTERN)))
 
@@ -85,7 +85,8 @@ def integrity_sections(board: Board, taken: set[str]) -> tuple[list[str], list[I
                      "an instruction-register scan that compares each device's INSTRUCTION_CAPTURE "
                      "(its two lowest bits are 01).")
     lines.append(INDENT + f"{', '.join(refs)} BYPASS")
-    lines += _scan_line("0" * len(chain), f"{len(chain)} bypass bits, then the pattern")
+    lines += _scan_line("0" * len(chain), f"{len(chain)} bypass bit{'s' * (len(chain) != 1)}, "
+                                          "then the pattern")
     lines.append("}")
     tests.append(IntegrityTest(name, "bypass_path", None, len(chain) + len(PATTERN)))
 
@@ -106,8 +107,9 @@ def integrity_sections(board: Board, taken: set[str]) -> tuple[list[str], list[I
         lines.append(INDENT + f"{entry.ref} {sample}")
         if others:
             lines.append(INDENT + f"{', '.join(others)} BYPASS")
-        lines += _scan_line(registers, f"{device.boundary_length} cells of {entry.ref} "
-                                       f"(not compared), {len(chain) - 1} bypass bits")
+        others_bits = len(chain) - 1
+        lines += _scan_line(registers, f"{device.boundary_length} cells of {entry.ref} (not compared), "
+                                       f"{others_bits} bypass bit{'s' * (others_bits != 1)}")
         lines.append("}")
         tests.append(IntegrityTest(name, "boundary", entry.ref, len(registers) + len(PATTERN)))
 
