@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -15,6 +16,7 @@ from scanloom.backend.schedule import schedule
 from scanloom.diagnostics import Diagnostics, ScanloomError
 from scanloom.ir import RegisterRead
 from scanloom.lang.frontend import load_program
+from scanloom.models.board import Part
 from scanloom.pipeline import compile_program
 from scanloom.sim.electrical import build_electrical
 from scanloom.sim.fault_effects import fault_effect
@@ -227,3 +229,39 @@ def test_a_computed_expectation_on_a_floating_cmos_net_is_not_compared() -> None
                      [expect("N0", "?"), expect("N1", "?")])
     program = make_program([make_test("t", [step])])
     assert compute_expectations(program, board) == {("t", "released", "N0"): "X", ("t", "released", "N1"): "1"}
+
+
+def _keeper_board():  # type: ignore[no-untyped-def]
+    """U2.Q(1) has a bus keeper on K; a buffer U9 (always 1, enabled by EN) also drives K; U1 and U2 drive EN."""
+    u1 = make_device("ENA1", 3, [(0, "BC_1", "P(0)", "OUTPUT3", "X", 1, 0, "Z"), (1, "BC_1", "*", "CONTROL", "0")])
+    u2 = make_device("KPR3", 3, [(0, "BC_1", "Q(0)", "OUTPUT3", "X", 1, 0, "Z"), (1, "BC_1", "*", "CONTROL", "0"),
+                                 (2, "BC_1", "Q(1)", "OUTPUT3", "X", 3, 0, "KEEPER"), (3, "BC_1", "*", "CONTROL", "0"),
+                                 (4, "BC_4", "Q(2)", "INPUT", "X")])
+    nets = {"EN": ["U1.P(0)", "U2.Q(0)", "U9.E"], "K": ["U2.Q(1)", "U2.Q(2)", "U9.Y"]}
+    board = make_board([("U1", u1), ("U2", u2)], nets, parts={"U9": ("E", "Y")})
+    buffer = Part("U9", ("E", "Y"), logic={"Y": "1"}, enables={"Y": "E"}, technology="cmos")
+    return replace(board, parts={"U9": buffer})
+
+
+@pytest.mark.parametrize("second, kept", [("SAMPLE", "X"), ("EXTEST", "0")])
+def test_a_keeper_holds_what_its_net_had_between_the_steps(second: str, kept: str) -> None:
+    # Step 1: U1 holds EN at 0 (buffer off), U2 drives K to 0. Step 2: U2 releases K to its
+    # keeper and takes EN over. When U1 also leaves EXTEST, its new instruction takes effect at
+    # Update-IR (IEEE 1149.1-2001, instruction register: the instruction is latched at
+    # Update-IR, from memory) while U2 still holds step 1's image: EN floats until U2's
+    # Update-DR, a floating CMOS input is undefined (common practice), so the buffer may fight
+    # U2's 0 on K and the keeper is left holding an unknown level: computed as X, not as the 0
+    # of step 1. When U1 stays in EXTEST there is no such window and the keeper holds the 0.
+    board = _keeper_board()
+    first = make_step("drive", modes_for(board, {"U1": "EXTEST", "U2": "EXTEST"}),
+                      [drive("U1.P(0)", "0"), drive("U2.Q(0)", "Z"), drive("U2.Q(1)", "0")], [expect("K", "?")])
+    then = make_step("hold", modes_for(board, {"U1": second, "U2": "EXTEST"}),
+                     ([drive("U1.P(0)", "0")] if second == "EXTEST" else [])
+                     + [drive("U2.Q(0)", "0"), drive("U2.Q(1)", "Z")], [expect("K", "?")])
+    program = make_program([make_test("t", [first, then])])
+    electrical = build_electrical(board, Diagnostics())
+    computed = compute_expectations(program, board, electrical)
+    assert computed == {("t", "drive", "K"): "0", ("t", "hold", "K"): kept}
+    scan = schedule(program, board, computed)
+    cycles = lay_out_cycles(scan)
+    assert VirtualBoard(electrical, scan, cycles).run().passed  # the fault-free board agrees

@@ -1,11 +1,16 @@
 """Computed expectations: what the fault-free board answers to a step, from its logic model.
 
-A program may leave an expectation's value to the compiler (`ir.COMPUTED`). For each such
-step the drive state in force is put on the virtual board: every device in EXTEST, CLAMP or
-INTEST holds the boundary image the scheduler builds for the step's drives
-(`scanloom.backend.images.build_image`), every other device releases its pins; the nets are
-resolved through pulls and logic parts, and the expected value is what the capturing cells
-read. A net the receivers would read differently, or as X (floating CMOS, contention), is
+A program may leave an expectation's value to the compiler (`ir.COMPUTED`). The value is
+what the capturing cells read when the step's response is captured, on the board the
+program really plays: the scheduler's own scans are worked out once (with every computed
+expectation compared, so that each step's response has its capture) and the fault-free
+board is resolved in every state they pass through, one bit per state, through pulls and
+logic parts. The state sequence matters because a bus keeper (a KEEPER disable result)
+holds whatever its node had last, and a step's scans pass through states of their own: after
+an instruction scan the new instructions drive the pins from the update stages loaded
+before (IEEE 1149.1-2001, Update-IR: the new instruction takes effect there, from memory),
+so a keeper may hold what a net was between two steps, not what it was at the step
+before. A net the receivers would read differently, or as X (floating CMOS, contention), is
 expected as X: not compared.
 
 The result is the mapping `schedule(program, board, computed)` takes:
@@ -14,20 +19,27 @@ The result is the mapping `schedule(program, board, computed)` takes:
 
 from __future__ import annotations
 
-from typing import Iterator, Mapping
+from dataclasses import replace
+from typing import Mapping
 
 from bitarray import frozenbitarray
 
-from ..backend.images import PRELOAD_KINDS, build_image, device_tables, mode_kind, selected_register
+from ..backend.cycles import lay_out_cycles
+from ..backend.images import (
+    PRELOAD_KINDS, DeviceTables, build_image, device_tables, mode_kind, selected_register,
+)
+from ..backend.records import ScanProgram
+from ..backend.schedule import schedule
 from ..diagnostics import Diagnostics
-from ..ir import COMPUTED, Program, Step, Test
+from ..ir import COMPUTED, Program, Step
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, instruction_class, resolve_capture
 from ..sim.electrical import ElectricalBoard, build_electrical
 from ..sim.fault_effects import good_groups
 from ..sim.resolve import GroupSolver, Level, PinDrive, read_level, scan_pin_drive
+from .scan_states import ScanStates, column, scan_states
 
-__all__ = ["compute_expectations", "step_levels", "iter_step_levels", "fill_computed"]
+__all__ = ["compute_expectations", "fill_computed"]
 
 Computed = dict[tuple[str, str, str], str]
 
@@ -41,49 +53,85 @@ def _instruction(board: Board, ref: str, name: str) -> str:
     return "BYPASS"  # as the scheduler does for an instruction the BSDL does not describe
 
 
-class _StepBoard:
-    """The fault-free board, one step at a time (a keeper remembers the step before)."""
+def _probe(program: Program) -> Computed:
+    """Every computed expectation compared (its value is irrelevant): each such step gets a capture.
 
-    def __init__(self, board: Board, electrical: ElectricalBoard) -> None:
+    The values only decide which bits are compared and whether a scan that changes nothing (an
+    image already in force, a flush) is kept: the states that change the pins are those of the
+    program compiled with the real values.
+    """
+    return {(test.name, step.name, expect.target): "0"
+            for test in program.tests for step in test.steps
+            for expect in step.expects if expect.value == COMPUTED}
+
+
+def _rails(value: int, known: int, full: int) -> tuple[int, int]:
+    value &= known
+    return (full & ~value, value | (full & ~known))
+
+
+class _PlayedBoard:
+    """The fault-free board in every state of the program's scans, one bit per state."""
+
+    def __init__(self, program: Program, board: Board, electrical: ElectricalBoard) -> None:
         self.board = board
         self.electrical = electrical
-        self.tables = {entry.ref: device_tables(entry.ref, entry.device) for entry in board.chain}
-        self.solver = GroupSolver(electrical, good_groups(electrical), electrical.node_of_pin)
-        self.previous: list[Level] | None = None
+        scan = schedule(program, board, _probe(program))
+        states = scan_states(scan, lay_out_cycles(scan), board)
+        self.full = states.full
+        drives = self._scan_drives(states)
+        solver = GroupSolver(electrical, good_groups(electrical), electrical.node_of_pin)
+        solved = solver.solve(drives.__getitem__, self.full)  # keepers hold across the states
+        self.levels = [solved[i] for i in range(len(electrical.nodes))]
+        self.state_of_step = self._response_states(scan, states)
 
-    def levels(self, step: Step) -> tuple[list[Level], dict[str, str], dict[str, frozenbitarray | None]]:
-        modes = {ref: _instruction(self.board, ref, name) for ref, name in step.modes}
-        images: dict[str, frozenbitarray | None] = {}
-        drives: dict[str, list[tuple[str, str]]] = {}
-        for drive in step.drives:
-            if drive.driver:
-                pin = PinRef.parse(drive.driver)
-                drives.setdefault(pin.ref, []).append((pin.port, drive.value))
-        for entry in self.board.chain:
-            ref = entry.ref
-            kind = mode_kind(entry.device, modes.get(ref, "BYPASS"))
-            images[ref] = (build_image(self.tables[ref], kind, tuple(drives.get(ref, ()))).image
-                           if kind in PRELOAD_KINDS else None)
-
-        def scan_drive(pin: PinRef) -> PinDrive:
-            driver = self.electrical.drivers[pin]
-            image = images.get(pin.ref)
-            if image is None:
-                return scan_pin_drive(driver, (1, 1), None, 0, 0, 1)
+    def _scan_drives(self, states: ScanStates) -> dict[PinRef, PinDrive]:
+        full = self.full
+        drives: dict[PinRef, PinDrive] = {}
+        for pin, driver in self.electrical.drivers.items():
+            device = states.devices[driver.device]
+            width = device.length
 
             def rails(cell: int | None) -> tuple[int, int] | None:
-                if cell is None:
-                    return None
-                if not 0 <= cell < len(image):
-                    return (1, 1)
-                return (0, 1) if image[cell] else (1, 0)
+                if cell is None or not 0 <= cell < width:
+                    return None if cell is None else (full, full)
+                return _rails(column(device.update_rows, width, cell), device.update_known, full)
 
-            return scan_pin_drive(driver, rails(driver.cell) or (1, 1), rails(driver.control), 1, 0, 1)
+            data = rails(driver.cell) or (full, full)
+            control = rails(driver.control) if driver.control is not None else None
+            drives[pin] = scan_pin_drive(driver, data, control, device.drive, 0, full)
+        return drives
 
-        solved = self.solver.solve(scan_drive, 1, previous=self.previous)
-        levels = [solved[i] for i in range(len(self.electrical.nodes))]
-        self.previous = levels
-        return levels, modes, images
+    @staticmethod
+    def _response_states(scan: ScanProgram, states: ScanStates) -> dict[tuple[str, str], int]:
+        """(test, step) -> the state its response is captured in (the first capture checking it)."""
+        found: dict[tuple[str, str], int] = {}
+        for event in states.captures:
+            for check in scan.records[event.record].checks:
+                if check.register == "BOUNDARY":
+                    found.setdefault((check.test, check.step), event.state)
+        return found
+
+    def levels_in(self, state: int) -> list[Level]:
+        return [Level((level.v0 >> state) & 1, (level.v1 >> state) & 1, (level.fl >> state) & 1)
+                for level in self.levels]
+
+
+def _step_state(board: Board, tables: Mapping[str, DeviceTables], step: Step
+                ) -> tuple[dict[str, str], dict[str, frozenbitarray | None]]:
+    """The instructions and boundary images the step puts in force (as the scheduler builds them)."""
+    modes = {ref: _instruction(board, ref, name) for ref, name in step.modes}
+    drives: dict[str, list[tuple[str, str]]] = {}
+    for drive in step.drives:
+        if drive.driver:
+            pin = PinRef.parse(drive.driver)
+            drives.setdefault(pin.ref, []).append((pin.port, drive.value))
+    images: dict[str, frozenbitarray | None] = {}
+    for entry in board.chain:
+        kind = mode_kind(entry.device, modes.get(entry.ref, "BYPASS"))
+        images[entry.ref] = (build_image(tables[entry.ref], kind, tuple(drives.get(entry.ref, ()))).image
+                             if kind in PRELOAD_KINDS else None)
+    return modes, images
 
 
 def _value(board: Board, electrical: ElectricalBoard, levels: list[Level], modes: Mapping[str, str],
@@ -131,48 +179,30 @@ def compute_expectations(program: Program, board: Board,
     if electrical is None:
         electrical = build_electrical(board, Diagnostics())
     computed: Computed = {}
-    stepper = _StepBoard(board, electrical)  # one board for the whole program, steps in order
+    if not any(expect.value == COMPUTED for test in program.tests for step in test.steps
+               for expect in step.expects):
+        return computed
+    played = _PlayedBoard(program, board, electrical)
+    tables = {entry.ref: device_tables(entry.ref, entry.device) for entry in board.chain}
     for test in program.tests:
         for step in test.steps:
             wanted = [e for e in step.expects if e.value == COMPUTED]
-            levels, modes, images = stepper.levels(step)
+            if not wanted:
+                continue
+            state = played.state_of_step.get((test.name, step.name))
+            if state is None:  # no cell captures any of them: nothing is compared
+                computed.update({(test.name, step.name, e.target): "X" for e in wanted})
+                continue
+            levels = played.levels_in(state)
+            modes, images = _step_state(board, tables, step)
             for expect in wanted:
                 computed[(test.name, step.name, expect.target)] = _value(
                     board, electrical, levels, modes, images, expect.target, expect.is_pin)
     return computed
 
 
-def iter_step_levels(program: Program, board: Board, electrical: ElectricalBoard | None = None
-                     ) -> Iterator[tuple[Test, Step, list[Level]]]:
-    """Every step in program order with its fault-free node levels (by node index)."""
-    if electrical is None:
-        electrical = build_electrical(board, Diagnostics())
-    stepper = _StepBoard(board, electrical)
-    for test in program.tests:
-        for step in test.steps:
-            yield test, step, stepper.levels(step)[0]
-
-
-def step_levels(program: Program, board: Board, test: str, step: str,
-                electrical: ElectricalBoard | None = None) -> list[Level]:
-    """The fault-free node levels during one step (by node index)."""
-    if electrical is None:
-        electrical = build_electrical(board, Diagnostics())
-    for item in program.tests:
-        if item.name != test:
-            continue
-        stepper = _StepBoard(board, electrical)
-        for current in item.steps:
-            levels, _, _ = stepper.levels(current)
-            if current.name == step:
-                return levels
-    raise KeyError((test, step))
-
-
 def fill_computed(program: Program, board: Board, electrical: ElectricalBoard | None = None) -> Program:
     """The program with every computed expectation replaced by its value."""
-    from dataclasses import replace
-
     computed = compute_expectations(program, board, electrical)
     tests = []
     for test in program.tests:
