@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 from typing import Iterable
 
 from ..models.board import PinRef
+from ..sim.fault_effects import split_members
 from ..sim.resolve import COMBINE_AND, COMBINE_OR, COMBINE_WIRE, Level, PinDrive, drive_sum, resolve_level
 from .interconnect_plan import Node
 from .observations import CellObservation, StateObservations
@@ -169,35 +170,13 @@ def _split(pins: BoardPins, node: Node, cut: set[PinRef], dropped: set[str]) -> 
     """The groups a node falls into when the pins in `cut` leave their nets (as the virtual
     board splits it: a cut series-part pin still connects through its part)."""
     board = pins.board
-    parent: dict[object, object] = {}
-
-    def find(item: object) -> object:
-        parent.setdefault(item, item)
-        while parent[item] != item:
-            parent[item] = parent[parent[item]]
-            item = parent[item]
-        return item
-
-    def vertex(pin: PinRef) -> object:
-        return pin if pin in cut else board.net_of_pin.get(pin, pin)
-
-    for net in node:
-        if net not in dropped:
-            find(net)
-    for pin in cut:
-        find(pin)
-    for part in board.parts.values():
-        for a_name, b_name in part.series:
-            a, b = PinRef(part.ref, a_name), PinRef(part.ref, b_name)
-            if board.net_of_pin.get(a) in node or board.net_of_pin.get(b) in node:
-                ra, rb = find(vertex(a)), find(vertex(b))
-                if ra != rb:
-                    parent[rb] = ra
-    members: dict[object, list[object]] = {}
-    for item in list(parent):
-        members.setdefault(find(item), []).append(item)
+    series = [(PinRef(part.ref, a), PinRef(part.ref, b)) for part in board.parts.values()
+              for a, b in part.series
+              if board.net_of_pin.get(PinRef(part.ref, a)) in node
+              or board.net_of_pin.get(PinRef(part.ref, b)) in node]
+    members = split_members(node, cut, dropped, series, board.net_of_pin)
     groups = []
-    for items in members.values():
+    for items in members:
         nets = tuple(n for n in node if n in items)
         group_pins = [pin for net in nets for pin in board.nets[net].pins if pin not in cut]
         group_pins += [i for i in items if isinstance(i, PinRef)]

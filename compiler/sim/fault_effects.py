@@ -11,7 +11,9 @@ whole faulted board from them (`faulted_groups`).
 
 from __future__ import annotations
 
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
+
 from ..models.board import PinRef
 from .electrical import ElectricalBoard, ElectricalNode
 from .faults import OPEN_NET, OPEN_PIN, SHORT, STUCK_AT, TAP_SHORT, TAP_SIGNALS, Fault, tap_port
@@ -142,6 +144,38 @@ def _net_tap_lines(electrical: ElectricalBoard, net: str) -> tuple[TapLine, ...]
     return tuple(sorted(line for line in lines if line is not None))
 
 
+def split_members(nets: Iterable[str], cut: set[PinRef], dropped: set[str],
+                  series: Iterable[tuple[PinRef, PinRef]], net_of_pin: Mapping[PinRef, str]) -> list[list[object]]:
+    """What a node falls into when the pins in `cut` leave their nets: its nets (str) and cut
+    pins (PinRef) grouped by what still connects them, through the node's series pairs (a cut
+    series-part pin still passes through its part)."""
+    parent: dict[object, object] = {}
+
+    def find(item: object) -> object:
+        parent.setdefault(item, item)
+        while parent[item] != item:
+            parent[item] = parent[parent[item]]
+            item = parent[item]
+        return item
+
+    def vertex(pin: PinRef) -> object:
+        return pin if pin in cut else net_of_pin.get(pin, pin)
+
+    for net in nets:
+        if net not in dropped:
+            find(net)
+    for pin in cut:
+        find(pin)
+    for a, b in series:
+        ra, rb = find(vertex(a)), find(vertex(b))
+        if ra != rb:
+            parent[rb] = ra
+    members: dict[object, list[object]] = {}
+    for item in list(parent):
+        members.setdefault(find(item), []).append(item)
+    return list(members.values())
+
+
 def _split(electrical: ElectricalBoard, node: ElectricalNode, cut: set[PinRef],
            dropped_nets: set[str]) -> tuple[Group, ...]:
     """The groups a node falls into when the pins in `cut` are isolated from their nets."""
@@ -153,33 +187,11 @@ def _split(electrical: ElectricalBoard, node: ElectricalNode, cut: set[PinRef],
                         nets=node.nets)] if rest else []
         groups += [Group(f"{pin} (open)", (pin,)) for pin in node.pins if pin in cut]
         return tuple(groups)
-    parent: dict[object, object] = {}
-
-    def find(item: object) -> object:
-        parent.setdefault(item, item)
-        while parent[item] != item:
-            parent[item] = parent[parent[item]]
-            item = parent[item]
-        return item
-
-    def vertex(pin: PinRef) -> object:
-        return pin if pin in cut else electrical.net_of_pin.get(pin, pin)
-
-    for net in node.nets:
-        if net not in dropped_nets:
-            find(net)
-    for pin in cut:
-        find(pin)
-    for a, b in electrical.series_of_node.get(node.index, ()):
-        ra, rb = find(vertex(a)), find(vertex(b))
-        if ra != rb:
-            parent[rb] = ra
-    members: dict[object, list[object]] = {}
-    for item in list(parent):
-        members.setdefault(find(item), []).append(item)
+    members = split_members(node.nets, cut, dropped_nets, electrical.series_of_node.get(node.index, ()),
+                            electrical.net_of_pin)
     groups: list[Group] = []
     order = {net: i for i, net in enumerate(node.nets)}
-    for items in sorted(members.values(), key=lambda its: min(
+    for items in sorted(members, key=lambda its: min(
             order.get(i, len(order)) if isinstance(i, str) else len(order) for i in its)):
         nets = tuple(sorted((i for i in items if isinstance(i, str)), key=order.__getitem__))
         pins = [pin for net in nets for pin in board.nets[net].pins if pin not in cut]
