@@ -24,6 +24,7 @@ __all__ = [
     "TapEffect",
     "FaultEffect",
     "fault_effect",
+    "split_members",
     "faulted_groups",
     "good_groups",
     "tap_lines_of_pin",
