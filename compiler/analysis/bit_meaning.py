@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from ..backend.cycle_stream import CycleStream
 from ..backend.records import DR_SCAN, IR_SCAN, ScanProgram
 
-__all__ = ["BitMeaning", "bit_meaning", "scan_bit_meaning", "ScanIndex"]
+__all__ = ["BitMeaning", "ScanIndex"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -104,11 +104,3 @@ class ScanIndex:
                 return BitMeaning(cycle, record_index, scan_bit, segment.device, segment.register, bit,
                                   port, net, test, step or None)
         return BitMeaning(cycle, record_index, scan_bit, test=record.test, step=record.step)
-
-
-def bit_meaning(program: ScanProgram, cycles: CycleStream, cycle: int) -> BitMeaning:
-    return ScanIndex(program, cycles).meaning(cycle)
-
-
-def scan_bit_meaning(program: ScanProgram, cycles: CycleStream, record: int, scan_bit: int) -> BitMeaning:
-    return ScanIndex(program, cycles).scan_meaning(record, scan_bit)
