@@ -288,21 +288,19 @@ class Scope:
 
     # ---- what each device can do ------------------------------------------------------------
     def driver_ports(self, ref: str) -> frozenset[str]:
+        """Ports with an OUTPUT2, OUTPUT3 or BIDIR cell (the device model's own index)."""
         ports = self._drivers.get(ref)
         if ports is None:
-            device = self.devices[ref].device
-            ports = frozenset(c.port for c in device.cells
-                              if c.port is not None and c.function in DRIVER_FUNCTIONS)
-            self._drivers[ref] = ports
+            ports = self._drivers[ref] = frozenset(self.devices[ref].device.driver_cells_by_port)
         return ports
 
     def core_input_ports(self, ref: str) -> frozenset[str]:
+        """Ports whose input cell drives the core side under INTEST."""
         ports = self._core_inputs.get(ref)
         if ports is None:
-            device = self.devices[ref].device
-            ports = frozenset(c.port for c in device.cells
-                              if c.port is not None and c.function in CORE_INPUT_FUNCTIONS)
-            self._core_inputs[ref] = ports
+            ports = self._core_inputs[ref] = frozenset(
+                port for port, cells in self.devices[ref].device.cells_by_port.items()
+                if any(c.function in CORE_INPUT_FUNCTIONS for c in cells))
         return ports
 
     def observed_ports(self, ref: str, instruction: str) -> frozenset[str]:
