@@ -196,14 +196,9 @@ def verify_command(shift_file: str, limit: int, allowed: tuple[str, ...]) -> Non
     for finding in hazards:
         click.echo(f"{shift_file}: error: [{finding.check}] {finding.message}", err=True)
     if not report.ok:
-        shown = report.mismatches if limit == 0 else report.mismatches[:limit]
-        for mismatch in shown:
-            click.echo(f"{shift_file}: {mismatch}", err=True)
-        if len(shown) < len(report.mismatches):
-            more = len(report.mismatches) - len(shown)
-            click.echo(f"{shift_file}: ... and {more} more mismatch{'es' * (more != 1)} "
-                       f"(--limit 0 shows all)", err=True)
-        click.echo(f"{shift_file}: {report.summary()}", err=True)
+        for line in report.render(None if limit == 0 else limit).splitlines():
+            more = " (--limit 0 shows all)" if line.startswith("... and ") else ""
+            click.echo(f"{shift_file}: {line}{more}", err=True)
         sys.exit(EXIT_FAIL)
     click.echo(f"{shift_file}: {report.summary()}")
     if hazards:
