@@ -13,6 +13,7 @@ import dataclasses
 import math
 from dataclasses import dataclass
 from itertools import chain
+from operator import getitem
 from typing import Sequence, Union
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
@@ -63,6 +64,10 @@ class StepPlan:
     wait_clocks: int
     overrides: tuple[Override, ...]
     span: SourceSpan | None
+    drive_keys: tuple[str, ...]  # the key (net, else pin) of each drive, aligned with `drives`
+    # The order that sorts `expects` by target, when known here (the rows of a vector table
+    # share it); None: the lowering sorts.
+    expect_order: tuple[int, ...] | None
 
 
 @dataclass(frozen=True, slots=True)
@@ -383,7 +388,8 @@ class _TestChecker:
             self.check_observed(signal, bits, modes, key)
         self.clamped_changes(drives, key, modes)
         self.items.append(StepPlan(name, key, flat_drives, flat_expects, tuple(writes),
-                                   tuple(reads), wait_clocks, tuple(overrides), span))
+                                   tuple(reads), wait_clocks, tuple(overrides), span,
+                                   _keys(flat_drives), None))
         self.unused_modes.clear()
 
     def clamped_changes(self, drives: Sequence[tuple[ast.Signal, Sequence[BitValue]]],
@@ -629,6 +635,10 @@ class _TestChecker:
             return
         overlapping_drives = _overlap(drive_cols)
         overlapping_expects = _overlap(expect_cols)
+        row_keys = tuple(bit.key for bits in drive_cols for bit in bits)  # type: ignore[union-attr]
+        expect_targets = [bit.target for bits in expect_cols for bit in bits]  # type: ignore[union-attr]
+        expect_order = tuple(sorted(range(len(expect_targets)), key=expect_targets.__getitem__))
+        columns = [_ColumnEntries(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
         memo: dict[tuple, tuple[BitValue, ...]] = {}
         n_drive, n_expect = len(drive_cols), len(expect_cols)
         for number, row in enumerate(table.rows, start=1):
@@ -641,41 +651,69 @@ class _TestChecker:
                 self.diag.error(f"the row has {len(row.drives)} drive and {len(row.expects)} expect "
                                 f"cells; the table has {n_drive} and {n_expect} columns", row.span)
                 continue
-            drives = self.row_cells(row, row.drives, drive_cols, table.drive_columns, DRIVE, memo, 0)
-            expects = self.row_cells(row, row.expects, expect_cols, table.expect_columns, EXPECT,
+            drives = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, memo, 0)
+            expects = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT,
                                      memo, n_drive)
             if drives is None or expects is None:
                 continue
             flat_drives = tuple(chain.from_iterable(entries for _, entries in drives))
             flat_expects = tuple(chain.from_iterable(entries for _, entries in expects))
+            keys, order = row_keys, expect_order
             if overlapping_drives:
                 flat_drives = self.no_conflicts(drives, "drives", name, row.span)
+                keys = _keys(flat_drives)
             if overlapping_expects:
                 flat_expects = self.no_conflicts(expects, "expects", name, row.span)
+                order = None
             self.clamped_changes(drives, key, modes, row.span)
-            self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span))
+            self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span,
+                                       keys, order))
         if table.rows:
             self.unused_modes.clear()
 
-    def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list,
+    def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list[_ColumnEntries],
                   signals: Sequence[ast.Signal], role: str, memo: dict,
                   offset: int) -> list[tuple[ast.Signal, tuple[BitValue, ...]]] | None:
-        """Each cell's bits. Cells carry no span of their own, so neither do their entries,
-        and the entries of equal cells in one column are shared between rows."""
+        """Each cell's bits. Cells carry no span of their own, so neither do their entries;
+        the entries of equal cells in one column are shared between rows, and every entry
+        giving a bit the same value is the same object (the lowering relies on it)."""
         out: list[tuple[ast.Signal, tuple[BitValue, ...]]] = []
         ok = True
-        for index, (cell, bits, signal) in enumerate(zip(cells, columns, signals)):
+        for index, (cell, signal) in enumerate(zip(cells, signals)):
+            column = columns[offset + index]
             memo_key = (offset + index, cell)
             entries = memo.get(memo_key)
             if entries is None:
                 placed = dataclasses.replace(cell, span=row.cell_span(offset + index))
-                values = value_bits(placed, len(bits), role, signal_text(signal), self.diag)
+                values = value_bits(placed, column.width, role, signal_text(signal), self.diag)
                 if values is None:
                     ok = False
                     continue
-                entries = memo[memo_key] = tuple((bit, char, None) for bit, char in zip(bits, values))
+                entries = memo[memo_key] = column.entries(values)
             out.append((signal, entries))
         return out if ok else None
+
+
+class _ColumnEntries(dict):
+    """The span-less entries of one table column, per value character, made on first use."""
+
+    def __init__(self, bits: tuple[BitRef, ...]):
+        super().__init__()
+        self.bits = bits
+        self.width = len(bits)
+        self.positions = range(len(bits))
+
+    def __missing__(self, char: str) -> tuple[BitValue, ...]:
+        made = self[char] = tuple((bit, char, None) for bit in self.bits)
+        return made
+
+    def entries(self, values: str) -> tuple[BitValue, ...]:
+        """Bit i's entry for value character values[i], by builtins alone."""
+        return tuple(map(getitem, map(self.__getitem__, values), self.positions))
+
+
+def _keys(entries: Sequence[BitValue]) -> tuple[str, ...]:
+    return tuple(entry[0].key for entry in entries)
 
 
 def _overlap(columns: list[tuple[BitRef, ...] | None]) -> bool:
