@@ -10,6 +10,7 @@ will really spend at the program's TCK.
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 
 from bitarray import bitarray
@@ -19,6 +20,7 @@ from ..backend.images import from_msb_string
 from ..backend.records import DR_SCAN, IR_SCAN, RESET, ScanProgram
 from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells
+from ..models.device import DeviceModel
 from ..safety_checks import Finding
 from ..sim.faults import adjacent_pin_pairs
 
@@ -51,20 +53,35 @@ def _adjacent_outputs(board: Board) -> list[tuple[_Output, _Output]]:
     """Pairs of scan outputs on neighbouring package pins of one device, on different nets,
     in chain order (each device's pairs together)."""
     pairs = []
+    net_of_pin = board.net_of_pin
     for entry in board.chain:
-        device = entry.device
-        for port_a, port_b in adjacent_pin_pairs(device):
+        for port_a, port_b, a, b in _driver_pairs(entry.device):
             pin_a, pin_b = PinRef(entry.ref, port_a), PinRef(entry.ref, port_b)
-            net_a, net_b = board.net_of_pin.get(pin_a), board.net_of_pin.get(pin_b)
+            net_a, net_b = net_of_pin.get(pin_a), net_of_pin.get(pin_b)
             if net_a is None or net_b is None or net_a == net_b:
                 continue
-            cells_a, cells_b = driver_cells(device, port_a), driver_cells(device, port_b)
-            if not cells_a or not cells_b:
-                continue
-            a, b = cells_a[0], cells_b[0]
-            pairs.append((_Output(pin_a, a.number, a.control_cell, a.disable_value),
-                          _Output(pin_b, b.number, b.control_cell, b.disable_value)))
+            pairs.append((_Output(pin_a, *a), _Output(pin_b, *b)))
     return pairs
+
+
+_Cells = tuple[int, "int | None", "int | None"]  # data cell, control cell, disable value
+_DRIVER_PAIRS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, tuple[tuple[str, str, _Cells, _Cells], ...]]" = \
+    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
+
+
+def _driver_pairs(device: DeviceModel) -> tuple[tuple[str, str, _Cells, _Cells], ...]:
+    """The device's neighbouring pins that both have an output cell, with their first cells."""
+    found = _DRIVER_PAIRS_OF_MODEL.get(device)
+    if found is None:
+        pairs = []
+        for port_a, port_b in adjacent_pin_pairs(device):
+            cells_a, cells_b = driver_cells(device, port_a), driver_cells(device, port_b)
+            if cells_a and cells_b:
+                a, b = cells_a[0], cells_b[0]
+                pairs.append((port_a, port_b, (a.number, a.control_cell, a.disable_value),
+                              (b.number, b.control_cell, b.disable_value)))
+        found = _DRIVER_PAIRS_OF_MODEL[device] = tuple(pairs)
+    return found
 
 
 class _PairTable:

@@ -31,7 +31,7 @@ from .values import DRIVE, EXPECT, READ, WRITE, time_in_seconds, value_bits
 __all__ = [
     "OVERRIDABLE_CHECKS", "MAX_WAIT_CLOCKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
     "ChainScanPlan", "ResetPlan", "TestItemPlan",
-    "WaitPlan", "TestPlan", "ProgramPlan", "check_program", "signal_text",
+    "WaitPlan", "TestPlan", "ColumnEntries", "ProgramPlan", "check_program", "signal_text",
 ]
 
 # Safety checks a test or step may knowingly override with `allow NAME "reason"`.
@@ -68,6 +68,11 @@ class StepPlan:
     # The order that sorts `expects` by target, when known here (the rows of a vector table
     # share it); None: the lowering sorts.
     expect_order: tuple[int, ...] | None
+    # A vector-table row whose columns do not overlap: `drives` and `expects` cell by cell,
+    # each its column and its value characters (the column's entries for those characters,
+    # concatenated, are the flat tuples). None for other steps.
+    drive_cells: tuple[tuple[ColumnEntries, str], ...] | None = None
+    expect_cells: tuple[tuple[ColumnEntries, str], ...] | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -638,8 +643,8 @@ class _TestChecker:
         row_keys = tuple(bit.key for bits in drive_cols for bit in bits)  # type: ignore[union-attr]
         expect_targets = [bit.target for bits in expect_cols for bit in bits]  # type: ignore[union-attr]
         expect_order = tuple(sorted(range(len(expect_targets)), key=expect_targets.__getitem__))
-        columns = [_ColumnEntries(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
-        memo: dict[tuple, tuple[BitValue, ...]] = {}
+        columns = [ColumnEntries(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
+        memo: dict[tuple, str] = {}
         n_drive, n_expect = len(drive_cols), len(expect_cols)
         for number, row in enumerate(table.rows, start=1):
             if table.name is None:
@@ -651,50 +656,56 @@ class _TestChecker:
                 self.diag.error(f"the row has {len(row.drives)} drive and {len(row.expects)} expect "
                                 f"cells; the table has {n_drive} and {n_expect} columns", row.span)
                 continue
-            drives = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, memo, 0)
-            expects = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT,
-                                     memo, n_drive)
-            if drives is None or expects is None:
+            drive_cells = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, memo, 0)
+            expect_cells = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT,
+                                          memo, n_drive)
+            if drive_cells is None or expect_cells is None:
                 continue
+            drives = [(signal, column.entries(values))
+                      for signal, (column, values) in zip(table.drive_columns, drive_cells)]
+            expects = [(signal, column.entries(values))
+                       for signal, (column, values) in zip(table.expect_columns, expect_cells)]
             flat_drives = tuple(chain.from_iterable(entries for _, entries in drives))
             flat_expects = tuple(chain.from_iterable(entries for _, entries in expects))
             keys, order = row_keys, expect_order
+            row_drives: tuple | None = drive_cells
+            row_expects: tuple | None = expect_cells
             if overlapping_drives:
                 flat_drives = self.no_conflicts(drives, "drives", name, row.span)
-                keys = _keys(flat_drives)
+                keys, row_drives = _keys(flat_drives), None
             if overlapping_expects:
                 flat_expects = self.no_conflicts(expects, "expects", name, row.span)
-                order = None
+                order, row_expects = None, None
             self.clamped_changes(drives, key, modes, row.span)
             self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span,
-                                       keys, order))
+                                       keys, order, row_drives, row_expects))
         if table.rows:
             self.unused_modes.clear()
 
-    def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list[_ColumnEntries],
-                  signals: Sequence[ast.Signal], role: str, memo: dict,
-                  offset: int) -> list[tuple[ast.Signal, tuple[BitValue, ...]]] | None:
-        """Each cell's bits. Cells carry no span of their own, so neither do their entries;
-        the entries of equal cells in one column are shared between rows, and every entry
-        giving a bit the same value is the same object (the lowering relies on it)."""
-        out: list[tuple[ast.Signal, tuple[BitValue, ...]]] = []
+    def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list[ColumnEntries],
+                  signals: Sequence[ast.Signal], role: str, memo: dict[tuple, str],
+                  offset: int) -> tuple[tuple[ColumnEntries, str], ...] | None:
+        """Each cell's column and value characters (equal cells of a column fitted once).
+        Cells carry no span of their own, so neither do their entries, and every entry giving
+        a bit the same value is the same object (the lowering relies on it)."""
+        out: list[tuple[ColumnEntries, str]] = []
         ok = True
         for index, (cell, signal) in enumerate(zip(cells, signals)):
             column = columns[offset + index]
             memo_key = (offset + index, cell)
-            entries = memo.get(memo_key)
-            if entries is None:
+            values = memo.get(memo_key)
+            if values is None:
                 placed = dataclasses.replace(cell, span=row.cell_span(offset + index))
                 values = value_bits(placed, column.width, role, signal_text(signal), self.diag)
                 if values is None:
                     ok = False
                     continue
-                entries = memo[memo_key] = column.entries(values)
-            out.append((signal, entries))
-        return out if ok else None
+                memo[memo_key] = values
+            out.append((column, values))
+        return tuple(out) if ok else None
 
 
-class _ColumnEntries(dict):
+class ColumnEntries(dict):
     """The span-less entries of one table column, per value character, made on first use."""
 
     def __init__(self, bits: tuple[BitRef, ...]):

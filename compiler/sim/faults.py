@@ -20,6 +20,7 @@ other) for ball grids such as "A1", "B2".
 from __future__ import annotations
 
 import re
+import weakref
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Sequence
@@ -365,8 +366,20 @@ def adjacent_pin_pairs(device: DeviceModel) -> list[tuple[str, str]]:
 
     Leaded packages (numbered pins) neighbour n and n+1; ball grids (row letters and column
     numbers, e.g. "C7") neighbour the next column in a row and the next row in a column, with
-    rows lettered as JEDEC does (no I, O, Q, S, X or Z: H is next to J).
+    rows lettered as JEDEC does (no I, O, Q, S, X or Z: H is next to J). Worked out once per
+    device model: a board repeats its parts, and grading, checks and diagnosis all ask.
     """
+    pairs = _PAIRS_OF_MODEL.get(device)
+    if pairs is None:
+        pairs = _PAIRS_OF_MODEL[device] = tuple(_adjacent_pairs(device))
+    return list(pairs)
+
+
+_PAIRS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, tuple[tuple[str, str], ...]]" = \
+    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
+
+
+def _adjacent_pairs(device: DeviceModel) -> list[tuple[str, str]]:
     if device.pin_map_name is None:
         return []
     pins: dict[str, str] = {}
