@@ -12,7 +12,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
-from itertools import chain
+from itertools import chain, repeat
 from operator import getitem
 from typing import Sequence, Union
 
@@ -31,7 +31,7 @@ from .values import DRIVE, EXPECT, READ, WRITE, time_in_seconds, value_bits
 __all__ = [
     "OVERRIDABLE_CHECKS", "MAX_WAIT_CLOCKS", "Header", "read_header", "BitValue", "RegisterAccess", "StepPlan",
     "ChainScanPlan", "ResetPlan", "TestItemPlan",
-    "WaitPlan", "TestPlan", "ColumnEntries", "ProgramPlan", "check_program", "signal_text",
+    "WaitPlan", "TestPlan", "ColumnEntries", "Assigned", "ProgramPlan", "check_program", "signal_text",
 ]
 
 # Safety checks a test or step may knowingly override with `allow NAME "reason"`.
@@ -53,26 +53,39 @@ class RegisterAccess:
     span: SourceSpan | None
 
 
+@dataclass(frozen=True, slots=True, eq=False)
+class Assigned:
+    """One signal's bits given values by one statement or one table cell.
+
+    Kept as the signal's column and a string of value characters, not bit by bit: a step of
+    a large board assigns tens of thousands of bits, and the lowering works on whole columns.
+    """
+
+    column: ColumnEntries
+    values: str  # one character per bit of column.bits, most significant first
+    span: SourceSpan | None  # where it was written; None for table cells (the row has one)
+
+    def entries(self) -> tuple[BitValue, ...]:
+        """Bit by bit; span-less entries are the column's shared ones."""
+        if self.span is None:
+            return self.column.entries(self.values)
+        return tuple(zip(self.column.bits, self.values, repeat(self.span)))
+
+    def same_as(self, other: "Assigned") -> bool:
+        return self.column is other.column and self.values == other.values and self.span == other.span
+
+
 @dataclass(frozen=True, slots=True)
 class StepPlan:
     name: str
     modes: tuple[tuple[str, str], ...]
-    drives: tuple[BitValue, ...]  # stated in this step, in the order written
-    expects: tuple[BitValue, ...]
+    drives: tuple[Assigned, ...]  # stated in this step, in the order written; no bit twice
+    expects: tuple[Assigned, ...]
     writes: tuple[RegisterAccess, ...]
     reads: tuple[RegisterAccess, ...]
     wait_clocks: int
     overrides: tuple[Override, ...]
     span: SourceSpan | None
-    drive_keys: tuple[str, ...]  # the key (net, else pin) of each drive, aligned with `drives`
-    # The order that sorts `expects` by target, when known here (the rows of a vector table
-    # share it); None: the lowering sorts.
-    expect_order: tuple[int, ...] | None
-    # A vector-table row whose columns do not overlap: `drives` and `expects` cell by cell,
-    # each its column and its value characters (the column's entries for those characters,
-    # concatenated, are the flat tuples). None for other steps.
-    drive_cells: tuple[tuple[ColumnEntries, str], ...] | None = None
-    expect_cells: tuple[tuple[ColumnEntries, str], ...] | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -143,6 +156,7 @@ def _check_program(files: ProgramFiles, header: Header, board: Board,
     tests: list[TestPlan] = []
     names: dict[str, ast.Test] = {}
     values: dict[tuple[ast.Value, int, str], str] = {}  # successful value fits, shared by tests
+    columns: dict[int, ColumnEntries] = {}  # id(bits) -> their column, shared by tests
     for item in files.items:
         if not isinstance(item, ast.Test):
             continue
@@ -150,7 +164,7 @@ def _check_program(files: ProgramFiles, header: Header, board: Board,
             diagnostics.error(f"test {item.name} is declared twice", item.name_span,
                               hint=f"the first is at {names[item.name].name_span}")
         names.setdefault(item.name, item)
-        tests.append(_TestChecker(scope, header, default, diagnostics, values).check(item))
+        tests.append(_TestChecker(scope, header, default, diagnostics, values, columns).check(item))
     return ProgramPlan(header, tuple(tests))
 
 
@@ -179,7 +193,7 @@ class _TestChecker:
     """Walks one test with the modes in force; collects the plan of its steps."""
 
     def __init__(self, scope: Scope, header: Header, default: str, diagnostics: Diagnostics,
-                 values: dict[tuple[ast.Value, int, str], str]):
+                 values: dict[tuple[ast.Value, int, str], str], columns: dict[int, ColumnEntries]):
         self.scope = scope
         self.header = header
         self.diag = diagnostics
@@ -190,6 +204,8 @@ class _TestChecker:
         self.unused_modes: list[ast.ModeSet] = []
         self.rows = 0  # rows of unnamed tables so far, numbered across the test
         self.values: dict[tuple[ast.Value, int, str], str] = values
+        self.columns = columns
+        self.coverage: dict[tuple, tuple[int, ...]] = {}  # undriven / unobserved positions
         self.last_modes: dict[str, str] | None = None  # modes of the previous step
         self.state: dict[str, str] = {}  # net or pin -> value driven so far in this test
 
@@ -355,8 +371,8 @@ class _TestChecker:
 
     # ---- steps ------------------------------------------------------------------------------
     def step(self, name: str, statements: Sequence[ast.StepItem], span: SourceSpan | None) -> None:
-        drives: list[tuple[ast.Signal, list[BitValue]]] = []
-        expects: list[tuple[ast.Signal, list[BitValue]]] = []
+        drives: list[tuple[ast.Signal, Assigned]] = []
+        expects: list[tuple[ast.Signal, Assigned]] = []
         accesses: list[tuple[ast.Read | ast.Write, str]] = []
         wait_clocks = 0
         overrides: list[Override] = []
@@ -385,19 +401,18 @@ class _TestChecker:
         modes = dict(self.modes)
         writes, reads = self.register_accesses(accesses, modes)
         key = self.modes_key(modes)
-        flat_drives = self.no_conflicts(drives, "drives", name)
-        flat_expects = self.no_conflicts(expects, "expects", name)
-        for signal, bits in drives:
-            self.check_drivable(signal, bits, key, modes)
-        for signal, bits in expects:
-            self.check_observed(signal, bits, modes, key)
+        step_drives = self.no_conflicts(drives, "drives", name)
+        step_expects = self.no_conflicts(expects, "expects", name)
+        for signal, assigned in drives:
+            self.check_drivable(signal, assigned, key, modes)
+        for signal, assigned in expects:
+            self.check_observed(signal, assigned, modes, key)
         self.clamped_changes(drives, key, modes)
-        self.items.append(StepPlan(name, key, flat_drives, flat_expects, tuple(writes),
-                                   tuple(reads), wait_clocks, tuple(overrides), span,
-                                   _keys(flat_drives), None))
+        self.items.append(StepPlan(name, key, step_drives, step_expects, tuple(writes),
+                                   tuple(reads), wait_clocks, tuple(overrides), span))
         self.unused_modes.clear()
 
-    def clamped_changes(self, drives: Sequence[tuple[ast.Signal, Sequence[BitValue]]],
+    def clamped_changes(self, drives: Sequence[tuple[ast.Signal, Assigned]],
                         key: tuple[tuple[str, str], ...], modes: dict[str, str],
                         where: SourceSpan | None = None) -> None:
         """Warn when a drive changes on a device that stays in CLAMP (IEEE 1149.1 CLAMP).
@@ -410,8 +425,8 @@ class _TestChecker:
         previous = self.last_modes
         self.last_modes = modes
         warned: set[str] = set()
-        for signal, bits in drives:
-            for bit, value, _ in bits:
+        for signal, assigned in drives:
+            for bit, value in zip(assigned.column.bits, assigned.values):
                 changed = self.state.get(bit.key) != value
                 self.state[bit.key] = value
                 if not changed or previous is None or "CLAMP" not in modes.values():
@@ -428,7 +443,7 @@ class _TestChecker:
                                        f"image {ref} entered CLAMP with; leave CLAMP to change it")
 
     def assign(self, target: ast.Signal, value: ast.Value, role: str,
-               into: list[tuple[ast.Signal, list[BitValue]]]) -> None:
+               into: list[tuple[ast.Signal, Assigned]]) -> None:
         bits = self.scope.signal(target, self.diag)
         if bits is None:
             return
@@ -440,20 +455,30 @@ class _TestChecker:
                 return
             self.values[memo_key] = values
         span = value.span if value.span is not None else target.span
-        into.append((target, [(bit, char, span) for bit, char in zip(bits, values)]))
+        into.append((target, Assigned(self.column(bits), values, span)))
 
-    def no_conflicts(self, assigned: Sequence[tuple[ast.Signal, Sequence[BitValue]]], what: str,
-                     step: str, where: SourceSpan | None = None) -> tuple[BitValue, ...]:
+    def column(self, bits: tuple[BitRef, ...]) -> ColumnEntries:
+        """The column of a signal's bits, one per bits tuple (signals resolve to shared tuples)."""
+        found = self.columns.get(id(bits))
+        if found is None:
+            found = self.columns[id(bits)] = ColumnEntries(bits)  # it keeps `bits` alive
+        return found
+
+    def no_conflicts(self, assigned: Sequence[tuple[ast.Signal, Assigned]], what: str,
+                     step: str, where: SourceSpan | None = None) -> tuple[Assigned, ...]:
         """Two different values for one net in one step is an error; repeats are merged."""
+        keys = [key for _, item in assigned for key in item.column.keys]
+        if len(set(keys)) == len(keys):
+            return tuple(item for _, item in assigned)
         seen: dict[str, BitValue] = {}
-        flat: list[BitValue] = []
-        for _signal, bits in assigned:
-            for entry in bits:
+        flat: list[Assigned] = []
+        for _signal, item in assigned:
+            for entry in item.entries():
                 bit, value, span = entry
                 previous = seen.get(bit.key)
                 if previous is None:
                     seen[bit.key] = entry
-                    flat.append(entry)
+                    flat.append(Assigned(self.column((bit,)), value, span))
                 elif previous[1] != value:
                     verb = "driven" if what == "drives" else "expected"
                     self.diag.error(f"{bit.key} is {verb} to two different values in step {step}: "
@@ -462,14 +487,37 @@ class _TestChecker:
                                     if previous[2] is not None else None)
         return tuple(flat)
 
-    def check_drivable(self, signal: ast.Signal, bits: list[BitValue],
+    def check_drivable(self, signal: ast.Signal, assigned: Assigned,
                        key: tuple[tuple[str, str], ...], modes: dict[str, str]) -> None:
-        failing = [bit for bit, value, _ in bits
-                   if value != "Z" and self.scope.choose_driver(bit, key, modes) is None]
+        bits, values = assigned.column.bits, assigned.values
+        failing = [bits[i] for i in self.undriven(assigned.column, key, modes) if values[i] != "Z"]
         if not failing:
             return
-        self.diag.error(self.cannot_drive_message(signal, failing, len(bits)), signal.span,
+        self.diag.error(self.cannot_drive_message(signal, failing, assigned.column.width), signal.span,
                         hint=self.drive_hint(failing[0], modes), code="not_driving_mode")
+
+    def undriven(self, column: ColumnEntries, key: tuple[tuple[str, str], ...],
+                 modes: dict[str, str]) -> tuple[int, ...]:
+        """Positions of the column's bits no device drives in these modes (once per column
+        and modes: a program drives the same groups step after step)."""
+        memo_key = ("drive", key, id(column))
+        found = self.coverage.get(memo_key)
+        if found is None:
+            choose = self.scope.choose_driver
+            found = self.coverage[memo_key] = tuple(
+                i for i, bit in enumerate(column.bits) if choose(bit, key, modes) is None)
+        return found
+
+    def unobserved(self, column: ColumnEntries, key: tuple[tuple[str, str], ...],
+                   modes: dict[str, str]) -> tuple[int, ...]:
+        """Positions of the column's bits no device captures in these modes."""
+        memo_key = ("observe", key, id(column))
+        found = self.coverage.get(memo_key)
+        if found is None:
+            observers = self.scope.observers
+            found = self.coverage[memo_key] = tuple(
+                i for i, bit in enumerate(column.bits) if not observers(bit, modes, key))
+        return found
 
     def cannot_drive_message(self, signal: ast.Signal, failing: list[BitRef], width: int) -> str:
         names = _names(failing)
@@ -490,12 +538,14 @@ class _TestChecker:
         where = ", ".join(f"{ref} (in {modes[ref]})" for ref in capable)
         return f"{where} can drive it in EXTEST or CLAMP"
 
-    def check_observed(self, signal: ast.Signal, bits: Sequence[BitValue], modes: dict[str, str],
+    def check_observed(self, signal: ast.Signal, assigned: Assigned, modes: dict[str, str],
                        key: tuple[tuple[str, str], ...]) -> None:
         failing: list[BitRef] = []
         bypassed: list[BitRef] = []
-        for bit, value, _ in bits:
-            if value == "X" or self.scope.observers(bit, modes, key):
+        bits, values = assigned.column.bits, assigned.values
+        for index in self.unobserved(assigned.column, key, modes):
+            bit = bits[index]
+            if values[index] == "X":
                 continue
             if bit.is_pin and modes[bit.target.split(".", 1)[0]] == "BYPASS" and \
                     self.scope.could_observe(bit):
@@ -632,18 +682,13 @@ class _TestChecker:
         key = self.modes_key(modes)
         for signal, bits in zip(table.drive_columns, drive_cols):
             if bits is not None:
-                self.check_drivable(signal, [(b, "0", None) for b in bits], key, modes)
+                self.check_drivable(signal, Assigned(self.column(bits), "0" * len(bits), None), key, modes)
         for signal, bits in zip(table.expect_columns, expect_cols):
             if bits is not None:
-                self.check_observed(signal, [(b, "0", None) for b in bits], modes, key)
+                self.check_observed(signal, Assigned(self.column(bits), "0" * len(bits), None), modes, key)
         if any(c is None for c in drive_cols) or any(c is None for c in expect_cols):
             return
-        overlapping_drives = _overlap(drive_cols)
-        overlapping_expects = _overlap(expect_cols)
-        row_keys = tuple(bit.key for bits in drive_cols for bit in bits)  # type: ignore[union-attr]
-        expect_targets = [bit.target for bits in expect_cols for bit in bits]  # type: ignore[union-attr]
-        expect_order = tuple(sorted(range(len(expect_targets)), key=expect_targets.__getitem__))
-        columns = [ColumnEntries(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
+        columns = [self.column(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
         memo: dict[tuple, str] = {}
         n_drive, n_expect = len(drive_cols), len(expect_cols)
         for number, row in enumerate(table.rows, start=1):
@@ -656,39 +701,24 @@ class _TestChecker:
                 self.diag.error(f"the row has {len(row.drives)} drive and {len(row.expects)} expect "
                                 f"cells; the table has {n_drive} and {n_expect} columns", row.span)
                 continue
-            drive_cells = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, memo, 0)
-            expect_cells = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT,
-                                          memo, n_drive)
-            if drive_cells is None or expect_cells is None:
+            drives = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, memo, 0)
+            expects = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT,
+                                     memo, n_drive)
+            if drives is None or expects is None:
                 continue
-            drives = [(signal, column.entries(values))
-                      for signal, (column, values) in zip(table.drive_columns, drive_cells)]
-            expects = [(signal, column.entries(values))
-                       for signal, (column, values) in zip(table.expect_columns, expect_cells)]
-            flat_drives = tuple(chain.from_iterable(entries for _, entries in drives))
-            flat_expects = tuple(chain.from_iterable(entries for _, entries in expects))
-            keys, order = row_keys, expect_order
-            row_drives: tuple | None = drive_cells
-            row_expects: tuple | None = expect_cells
-            if overlapping_drives:
-                flat_drives = self.no_conflicts(drives, "drives", name, row.span)
-                keys, row_drives = _keys(flat_drives), None
-            if overlapping_expects:
-                flat_expects = self.no_conflicts(expects, "expects", name, row.span)
-                order, row_expects = None, None
+            row_drives = self.no_conflicts(drives, "drives", name, row.span)
+            row_expects = self.no_conflicts(expects, "expects", name, row.span)
             self.clamped_changes(drives, key, modes, row.span)
-            self.items.append(StepPlan(name, key, flat_drives, flat_expects, (), (), 0, (), row.span,
-                                       keys, order, row_drives, row_expects))
+            self.items.append(StepPlan(name, key, row_drives, row_expects, (), (), 0, (), row.span))
         if table.rows:
             self.unused_modes.clear()
 
     def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list[ColumnEntries],
                   signals: Sequence[ast.Signal], role: str, memo: dict[tuple, str],
-                  offset: int) -> tuple[tuple[ColumnEntries, str], ...] | None:
-        """Each cell's column and value characters (equal cells of a column fitted once).
-        Cells carry no span of their own, so neither do their entries, and every entry giving
-        a bit the same value is the same object (the lowering relies on it)."""
-        out: list[tuple[ColumnEntries, str]] = []
+                  offset: int) -> list[tuple[ast.Signal, Assigned]] | None:
+        """Each cell as assigned bits (equal cells of a column fitted once). Cells carry no
+        span of their own, so neither do their bits: the row's span stands for them."""
+        out: list[tuple[ast.Signal, Assigned]] = []
         ok = True
         for index, (cell, signal) in enumerate(zip(cells, signals)):
             column = columns[offset + index]
@@ -701,8 +731,8 @@ class _TestChecker:
                     ok = False
                     continue
                 memo[memo_key] = values
-            out.append((column, values))
-        return tuple(out) if ok else None
+            out.append((signal, Assigned(column, values, None)))
+        return out if ok else None
 
 
 class ColumnEntries(dict):
@@ -713,6 +743,9 @@ class ColumnEntries(dict):
         self.bits = bits
         self.width = len(bits)
         self.positions = range(len(bits))
+        self.keys = tuple(bit.key for bit in bits)
+        self.targets = tuple(bit.target for bit in bits)
+        self.pins = tuple(bit.is_pin for bit in bits)
 
     def __missing__(self, char: str) -> tuple[BitValue, ...]:
         made = self[char] = tuple((bit, char, None) for bit in self.bits)
@@ -721,20 +754,6 @@ class ColumnEntries(dict):
     def entries(self, values: str) -> tuple[BitValue, ...]:
         """Bit i's entry for value character values[i], by builtins alone."""
         return tuple(map(getitem, map(self.__getitem__, values), self.positions))
-
-
-def _keys(entries: Sequence[BitValue]) -> tuple[str, ...]:
-    return tuple(entry[0].key for entry in entries)
-
-
-def _overlap(columns: list[tuple[BitRef, ...] | None]) -> bool:
-    keys: set[str] = set()
-    for bits in columns:
-        for bit in bits or ():
-            if bit.key in keys:
-                return True
-            keys.add(bit.key)
-    return False
 
 
 def _names(bits: Sequence[BitRef], limit: int = 4) -> str:

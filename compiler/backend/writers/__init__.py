@@ -9,6 +9,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Iterable
 
+from ...collector import collector_paused
 from ...diagnostics import Diagnostic, ScanloomError, nearest
 from ..cycle_stream import CycleStream
 from ..records import ScanProgram
@@ -67,20 +68,21 @@ def write_outputs(program: ScanProgram, cycles: CycleStream, out_dir: Path, stem
     written: list[Path] = []
     path = out_dir
     try:
-        out_dir.mkdir(parents=True, exist_ok=True)
-        for name in FORMATS:
-            if name not in requested:
-                continue
-            path = output_path(out_dir, stem, name)
-            if name == "json":
-                write_shift_file(program, cycles, path)
-            elif name == "cycles":
-                write_cycle_table(cycles, path)
-            elif name == "vcd":
-                write_vcd(cycles, path, tck_hz=program.tck_hz, title=f"scanloom cycles of {stem}")
-            else:
-                write_listing(program, cycles, path)
-            written.append(path)
+        with collector_paused():  # the writers build millions of small strings and lists
+            out_dir.mkdir(parents=True, exist_ok=True)
+            for name in FORMATS:
+                if name not in requested:
+                    continue
+                path = output_path(out_dir, stem, name)
+                if name == "json":
+                    write_shift_file(program, cycles, path)
+                elif name == "cycles":
+                    write_cycle_table(cycles, path)
+                elif name == "vcd":
+                    write_vcd(cycles, path, tck_hz=program.tck_hz, title=f"scanloom cycles of {stem}")
+                else:
+                    write_listing(program, cycles, path)
+                written.append(path)
     except OSError as error:
         reason = error.strerror or str(error)
         raise ScanloomError([Diagnostic("error", f"cannot write {path}: {reason}",

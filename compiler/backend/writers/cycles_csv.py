@@ -12,13 +12,14 @@ row-major buffer with stepped slice assignments, one block per count of cycle di
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Iterator
 
 from bitarray import bitarray
 
 from ..cycle_stream import CycleStream
-from .atomic import write_atomically
+from .atomic import atomic_output
 
-__all__ = ["CYCLE_TABLE_HEADER", "render_cycle_table", "write_cycle_table"]
+__all__ = ["CYCLE_TABLE_HEADER", "cycle_table_blocks", "render_cycle_table", "write_cycle_table"]
 
 CYCLE_TABLE_HEADER = b"cycle,tms,tdi,tdo\n"
 _TDO_SYMBOLS = bytes.maketrans(b"\x00\x01\x02", b"01X")
@@ -50,13 +51,14 @@ def _digit_column(start: int, count: int, place: int) -> bytes:
     return b"".join(pieces)
 
 
-def render_cycle_table(cycles: CycleStream) -> bytes:
-    """The whole table as ASCII bytes, LF line ends, header first."""
+def cycle_table_blocks(cycles: CycleStream) -> Iterator[bytes | bytearray]:
+    """The table as ASCII blocks, header first: one block per count of cycle digits, so a
+    table of millions of rows is written without first being joined into one string."""
     count = cycles.count
     tms = cycles.tms.unpack(zero=b"0", one=b"1")
     tdi = cycles.tdi.unpack(zero=b"0", one=b"1")
     tdo = _tdo_column(cycles.tdo, cycles.mask)
-    blocks = [CYCLE_TABLE_HEADER]
+    yield CYCLE_TABLE_HEADER
     digits = 1
     start = 0
     while start < count:
@@ -74,12 +76,20 @@ def render_cycle_table(cycles: CycleStream) -> bytes:
         block[digits + 4::width] = b"," * rows
         block[digits + 5::width] = tdo[start:end]
         block[digits + 6::width] = b"\n" * rows
-        blocks.append(bytes(block))
+        yield block
+        del block
         start = end
         digits += 1
-    return b"".join(blocks)
+
+
+def render_cycle_table(cycles: CycleStream) -> bytes:
+    """The whole table as ASCII bytes, LF line ends, header first."""
+    return b"".join(cycle_table_blocks(cycles))
 
 
 def write_cycle_table(cycles: CycleStream, path: Path) -> Path:
-    """Write the cycle table to `path` atomically."""
-    return write_atomically(path, render_cycle_table(cycles))
+    """Write the cycle table to `path` atomically, block by block."""
+    with atomic_output(path, binary=True) as handle:
+        for block in cycle_table_blocks(cycles):
+            handle.write(block)
+    return Path(path)

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from itertools import compress
 from pathlib import Path
-from typing import Sequence
+from typing import Iterator, Sequence
 
 from bitarray import bitarray
 
@@ -18,7 +18,7 @@ from ..cycle_stream import CycleStream
 from ..hexbits import bits_to_hex
 from ..records import DR_SCAN, IDLE, IR_SCAN, RESET, CellMeaning, DeviceMap, ScanProgram, ShiftRecord
 from ..tap import UNKNOWN_STATE_CODE, TapState, next_state, state_code_name, state_from_name
-from .atomic import write_atomically
+from .atomic import atomic_output
 from .json_writer import relative_posix
 
 __all__ = ["render_listing", "write_listing"]
@@ -187,8 +187,9 @@ def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
     return lines
 
 
-def render_listing(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> str:
-    """The listing's text (paths relative to `out_dir`)."""
+def listing_parts(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> Iterator[str]:
+    """The listing's text piece by piece (the head, then each record), paths relative to
+    `out_dir`: a large program's listing is written without holding all of it at once."""
     chain = program.chain.devices
     labels = _ChainLabels(chain)
     excess = cycles.count - cycles.lower_bound
@@ -225,11 +226,22 @@ def render_listing(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> 
         shift_start = next(shift_starts) if record.kind in (IR_SCAN, DR_SCAN) else None
         lines += _record_lines(index, record, cycles.record_starts[index], ends[index], shift_start,
                                labels, chain, cycles)
-    lines += ["", f"end: {cycles.count} TCK, {verdict}"]
-    return "\n".join(lines) + "\n"
+        lines.append("")
+        yield "\n".join(lines)
+        lines = []
+    lines += ["", f"end: {cycles.count} TCK, {verdict}", ""]
+    yield "\n".join(lines)
+
+
+def render_listing(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> str:
+    """The listing's text (paths relative to `out_dir`)."""
+    return "".join(listing_parts(program, cycles, out_dir))
 
 
 def write_listing(program: ScanProgram, cycles: CycleStream, path: Path) -> Path:
-    """Write the listing to `path` atomically."""
+    """Write the listing to `path` atomically, record by record."""
     path = Path(path)
-    return write_atomically(path, render_listing(program, cycles, path.parent))
+    with atomic_output(path) as handle:
+        for part in listing_parts(program, cycles, path.parent):
+            handle.write(part)
+    return path
