@@ -314,8 +314,6 @@ def faults_command(target: str, faults_file: str | None, universe: str, as_json:
     board's is known) or not detected, with the first detecting test, step and bit, or the
     reason in words; then coverage per fault class. Exit 0 when graded, 2 on bad input.
     """
-    import json
-
     from .analysis.board_runs import faults_for, grade_run, load_run
     from .sim.faults import UNIVERSE_CLASSES
 
@@ -336,7 +334,7 @@ def faults_command(target: str, faults_file: str | None, universe: str, as_json:
     except ScanloomError as error:
         sys.exit(report_error(error))
     if as_json:
-        click.echo(json.dumps(report.as_data(), indent=2))
+        click.echo(report.render_json())
     else:
         click.echo(report.render(details=not summary), nl=False)
     report_diagnostics(diagnostics)

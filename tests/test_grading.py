@@ -3,6 +3,7 @@ against the cycle-level virtual board (every fault of the examples and of random
 
 from __future__ import annotations
 
+import json
 import re
 from pathlib import Path
 
@@ -13,6 +14,7 @@ from hypothesis import strategies as st
 from chainfactory import drive, expect, make_board, make_device, make_program, make_step, make_test
 from scanloom.analysis.bit_meaning import ScanIndex
 from scanloom.analysis.board_runs import load_program_run
+from scanloom.analysis.fault_verdicts import GradingReport
 from scanloom.analysis.computed import compute_expectations
 from scanloom.analysis.grading import (
     DETECTED, NOT_DETECTED, POSSIBLY_DETECTED, FaultGrader, grade_faults, verdict_from_simulation,
@@ -140,6 +142,13 @@ def test_coverage_per_class_and_json(valve_nets) -> None:  # type: ignore[no-unt
     assert first["first"]["net"] == "VALVE_D0" and first["first"]["step"] == "walking_zero"
     text = report.render()
     assert re.search(r"^  all faults +3 / 5 +60\.0 %   possibly 1, not detected 1$", text, re.M)
+    # The JSON text (each verdict on one line) is exactly the data, read back by the
+    # standard library's parser; so is an empty report's.
+    rendered = report.render_json()
+    assert json.loads(rendered) == data
+    assert sum(line.startswith('    {"fault": ') for line in rendered.splitlines()) == 5
+    empty = GradingReport(())
+    assert json.loads(empty.render_json()) == empty.as_data()
 
 
 def test_bits_the_fault_free_board_does_not_reproduce_are_left_out() -> None:

@@ -9,6 +9,7 @@ reproduces.
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass
 
 from bitarray import bitarray
@@ -101,6 +102,22 @@ class GradingReport:
         return {"faults": [v.as_data() for v in self.verdicts],
                 "coverage": {name: c.as_data() for name, c in self.coverage().items()},
                 "excluded_bits": self.excluded_bits}
+
+    def render_json(self) -> str:
+        """`as_data()` as indented JSON with each fault's verdict on one line.
+
+        A board's universe has a hundred thousand faults; the standard library's encoder
+        writes compact JSON in C but indented JSON in Python, so the verdicts are encoded
+        compactly and only the document around them is indented.
+        """
+        data = self.as_data()
+        faults = data.pop("faults")
+        encode = json.JSONEncoder(separators=(", ", ": ")).encode
+        rest = json.dumps(data, indent=2)[1:].lstrip("\n")  # its keys, indented, and the "}"
+        if not faults:
+            return '{\n  "faults": [],\n' + rest
+        body = ",\n".join("    " + encode(item) for item in faults)  # type: ignore[union-attr]
+        return '{\n  "faults": [\n' + body + "\n  ],\n" + rest
 
     def render(self, *, details: bool = True) -> str:
         lines: list[str] = []

@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import cached_property
+from typing import NamedTuple
 
 from ..diagnostics import SourceSpan
 from .device import DeviceModel
@@ -19,9 +20,12 @@ __all__ = ["PinRef", "ChainDevice", "Part", "Net", "Board", "TECHNOLOGIES"]
 TECHNOLOGIES = ("cmos", "ttl")  # receiver technologies: how a floating input reads
 
 
-@dataclass(frozen=True, slots=True, order=True)
-class PinRef:
-    """A pin of a device or part: `ref` and the BSDL port bit or part pin name."""
+class PinRef(NamedTuple):
+    """A pin of a device or part: `ref` and the BSDL port bit or part pin name.
+
+    A named tuple rather than a dataclass: pins are dictionary keys on every hot path of the
+    virtual board and the grading, and a tuple hashes and compares without Python code.
+    """
 
     ref: str
     port: str
