@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 from bitarray import frozenbitarray
 
-from ..backend.images import CLAMP, DRIVE, ChainImages, device_tables, mode_kind
+from ..backend.images import CLAMP, DRIVE, chain_images, device_tables, mode_kind
 from ..ir import Program, Step
 from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells, series_groups
@@ -39,7 +39,7 @@ class StepOutputs:
         self.board = board
         self.refs = tuple(entry.ref for entry in board.chain)
         self.tables = tuple(device_tables(e.ref, e.device) for e in board.chain)
-        self.images = ChainImages(self.tables)
+        self.images = chain_images(board)
         self.index = {ref: i for i, ref in enumerate(self.refs)}
         self.node_of: dict[str, tuple[str, ...]] = {}
         groups = series_groups(board)

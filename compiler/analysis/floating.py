@@ -14,7 +14,7 @@ from __future__ import annotations
 
 from bitarray import bitarray
 
-from ..backend.images import CLAMP, DRIVE, ChainImages, device_tables, mode_kind
+from ..backend.images import CLAMP, DRIVE, chain_images, mode_kind
 from ..ir import Program
 from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells, series_groups
@@ -30,7 +30,7 @@ def check_floating_expectations(program: Program, board: Board) -> list[Finding]
         return []
     refs = [entry.ref for entry in board.chain]
     index = {ref: i for i, ref in enumerate(refs)}
-    images = ChainImages([device_tables(e.ref, e.device) for e in board.chain])
+    images = chain_images(board)
     groups = series_groups(board)
     logic_pins = {PinRef(part.ref, pin) for part in board.parts.values() for pin in part.logic}
 

@@ -20,6 +20,7 @@ from typing import Iterable, Mapping, Sequence
 from bitarray import bitarray, frozenbitarray
 
 from ..ir import Drive
+from ..models.board import Board
 from ..models.cells import STANDARD_CELLS, instruction_class
 from ..models.device import CONTROL_FUNCTIONS, DRIVER_FUNCTIONS, BoundaryCell, CellInfo, DeviceModel
 
@@ -38,6 +39,7 @@ __all__ = [
     "ImageResult",
     "ChainDriver",
     "ChainImages",
+    "chain_images",
     "StepImages",
     "selected_register",
     "mode_kind",
@@ -175,6 +177,7 @@ def _cell_info(device: DeviceModel, cell_type: str) -> CellInfo | None:
 # Tables depend only on the device model; boards repeat part types and several stages ask for
 # them, so they are kept per model for as long as the model lives (weakly: no run leaks).
 _TABLES_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, DeviceTables]" = weakref.WeakKeyDictionary()
+_IMAGES_OF_BOARD: "weakref.WeakKeyDictionary[Board, ChainImages]" = weakref.WeakKeyDictionary()
 
 
 def device_tables(ref: str, device: DeviceModel) -> DeviceTables:
@@ -332,9 +335,9 @@ class _DriveTable:
 class StepImages:
     """Every device's image for a step, the chain-wide image behind them, and problems."""
 
-    images: list[frozenbitarray | None]  # None outside boundary and clamp modes
+    images: tuple[frozenbitarray | None, ...]  # None outside boundary and clamp modes
     chain_image: frozenbitarray  # EXTEST and CLAMP images side by side (others: unused)
-    problems: list[str]
+    problems: tuple[str, ...]
 
 
 _DRIVER_OF = attrgetter("driver")
@@ -343,6 +346,19 @@ _DRIVE_VALUES = frozenset({"0", "1", "Z"})
 _DROP_DRIVE_VALUES = str.maketrans("", "", "01Z")  # what is left is not a drive value
 _ONES = str.maketrans("01Z", "010")
 _ZEROS = str.maketrans("01Z", "100")
+
+
+_BUILT_LIMIT = 256  # steps whose images one ChainImages keeps (about 25 kB each on a large board)
+
+
+def chain_images(board: Board) -> ChainImages:
+    """The board's ChainImages, one per board object: the scheduler and the pre-hardware
+    checks build the same steps' images, and a large board's tables take a while to set up."""
+    found = _IMAGES_OF_BOARD.get(board)
+    if found is None:
+        found = _IMAGES_OF_BOARD[board] = ChainImages(
+            [device_tables(entry.ref, entry.device) for entry in board.chain])
+    return found
 
 
 class ChainImages:
@@ -375,6 +391,9 @@ class ChainImages:
         self.drivers = drivers
         self.index = {table.ref: idx for idx, table in enumerate(self.tables)}
         self._last: _DriveTable | None = None
+        # (kinds, id(drives)) -> (drives, images): the scheduler and the checks build the same
+        # steps; holding the drives keeps their id from being reused while the entry lives.
+        self._built: dict[tuple[tuple[str, ...], int], tuple[Sequence[Drive], StepImages]] = {}
 
     def _table(self, kinds: tuple[str, ...], drivers: list[str | None]) -> _DriveTable:
         direct = [kind == DRIVE or kind == CLAMP for kind in kinds]
@@ -403,6 +422,17 @@ class ChainImages:
 
     def build(self, kinds: tuple[str, ...], drives: Sequence[Drive]) -> StepImages:
         """Each device's image for a step (IEEE 1149.1 boundary-register rules, see build_image)."""
+        key = (kinds, id(drives))
+        found = self._built.get(key)
+        if found is not None and found[0] is drives:
+            return found[1]
+        built = self._build(kinds, drives)
+        if len(self._built) >= _BUILT_LIMIT:
+            self._built.clear()
+        self._built[key] = (drives, built)
+        return built
+
+    def _build(self, kinds: tuple[str, ...], drives: Sequence[Drive]) -> StepImages:
         problems: list[str] = []
         drivers = list(map(_DRIVER_OF, drives))
         table = self._last
@@ -446,7 +476,7 @@ class ChainImages:
                 images.append(device_table.safe)
             else:
                 images.append(None)
-        return StepImages(images, frozenbitarray(image), problems)
+        return StepImages(tuple(images), frozenbitarray(image), tuple(problems))
 
     def _check_releases(self, table: _DriveTable, released: bitarray, image: bitarray,
                         problems: list[str]) -> None:

@@ -29,7 +29,7 @@ from .captures import (
     CaptureResolver, ExpectationTable, build_expectation_table, compare_expectations,
 )
 from .images import (
-    BOUNDARY_KINDS, CLAMP, OBSERVE, PRELOAD_KINDS, USER, ChainImages, device_tables, from_msb_string, mask_from_msb_string, mode_kind, preload_instruction,
+    BOUNDARY_KINDS, CLAMP, OBSERVE, PRELOAD_KINDS, USER, chain_images, device_tables, from_msb_string, mask_from_msb_string, mode_kind, preload_instruction,
     selected_register, to_msb_string, zeros,
 )
 from .records import DR_SCAN, IDLE, IR_SCAN, RESET, CheckRange, ScanProgram, Segment, ShiftRecord
@@ -121,7 +121,7 @@ class _Scheduler:
         self.index = {ref: idx for idx, ref in enumerate(self.refs)}
         self.devices = tuple(entry.device for entry in board.chain)
         self.tables = tuple(device_tables(entry.ref, entry.device) for entry in board.chain)
-        self.chain_images = ChainImages(self.tables)
+        self.chain_images = chain_images(board)
         self.lengths = tuple(register_lengths(device) for device in self.devices)
         self.resolver = CaptureResolver()
         self.records: list[ShiftRecord] = []
