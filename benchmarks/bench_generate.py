@@ -37,6 +37,7 @@ from scanloom.backend.cycles import lay_out_cycles  # noqa: E402
 from scanloom.backend.schedule import schedule  # noqa: E402
 from scanloom.backend.shiftfile import read_shift_file  # noqa: E402
 from scanloom.backend.writers import write_outputs  # noqa: E402
+from scanloom.collector import collector_paused  # noqa: E402
 from scanloom.diagnostics import Diagnostics  # noqa: E402
 from scanloom.lang.frontend import compile_source  # noqa: E402
 from scanloom.models.board_loader import load_board  # noqa: E402
@@ -70,12 +71,20 @@ def main() -> None:
     loading = time.perf_counter() - start
 
     def generate() -> str:
+        with collector_paused():
+            return generate_paused()
+
+    def generate_paused() -> str:
         generated = generate_program(board, board_reference(board_file, program_file), "interconnect",
                                      "counting", BoardPins(board))
         program_file.write_text(generated.text)
         return generated.text
 
     def compile_text() -> tuple:  # type: ignore[type-arg]
+        with collector_paused():  # as every scanloom command runs
+            return compile_paused()
+
+    def compile_paused() -> tuple:  # type: ignore[type-arg]
         diagnostics = Diagnostics()
         program = compile_source(text, str(program_file), board, diagnostics)
         scan = schedule(program, board)

@@ -39,6 +39,9 @@ _TERMINAL_WORDS = {
 }
 
 _CELL = re.compile(r"\S+")
+# In a MEMBER_LIST token: a comment (skipped), or a member name or pin (group 1).
+_MEMBER_OR_COMMENT = re.compile(r"#[^\r\n]*|([A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z0-9_]+(?:\([0-9]+\))?)?)")
+_LINE_BREAK = re.compile(r"\n")
 _COMMENT_OR_STRING = re.compile(r'"(?:[^"\\\r\n]|\\.)*"?|#[^\r\n]*')
 
 
@@ -280,6 +283,25 @@ class _ToAst(Transformer):
         members = next(x for x in c if isinstance(x, list))
         closing = next(x for x in c if _is_token(x, "RSQB"))
         return ast.GroupDecl(c[1].value, tuple(members), self._between(c[0], closing), self._tok(c[1]))
+
+    def group_list(self, c: list) -> ast.GroupDecl:
+        """A group whose members the lexer took as one MEMBER_LIST token: split it here."""
+        token: Token = c[3]
+        text = token.value
+        breaks = [match.start() for match in _LINE_BREAK.finditer(text)]
+        members: list[ast.Signal] = []
+        for match in _MEMBER_OR_COMMENT.finditer(text):
+            name = match.group(1)
+            if name is None:
+                continue  # a comment
+            offset = match.start()
+            before = bisect.bisect_left(breaks, offset)
+            line = token.line + before
+            column = token.column + offset if before == 0 else offset - breaks[before - 1]
+            span = SourceSpan(self.file, line, column, line, column + len(name))
+            ref, dot, port = name.partition(".")
+            members.append(ast.PinSignal(ref, port, span) if dot else ast.NameSignal(name, span))
+        return ast.GroupDecl(c[1].value, tuple(members), self._between(c[0], token), self._tok(c[1]))
 
     def default_mode(self, c: list) -> ast.DefaultModeDecl:
         return ast.DefaultModeDecl(c[2].value, self._between(c[0], c[2]), self._tok(c[2]))
