@@ -1,0 +1,67 @@
+"""The `scanloom` program's exit: the command's code, output flushed, no teardown.
+
+`cli.run` is the console entry point (pyproject) and what `python -m scanloom.cli` runs. It
+leaves with os._exit once the command is done, so the exit codes (0 ok, 1 failure, 2 bad
+input or usage) must come through it unchanged and nothing printed may be lost.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from scanloom import cli
+
+ROOT = Path(__file__).resolve().parent.parent
+EXAMPLE = ROOT / "examples" / "irrigation" / "valve_nets.loom"
+
+
+class _Left(Exception):
+    def __init__(self, code: int):
+        super().__init__(code)
+        self.code = code
+
+
+@pytest.fixture
+def leave(monkeypatch):  # noqa: ANN001, ANN201
+    def fake_exit(code: int) -> None:
+        raise _Left(code)
+
+    monkeypatch.setattr(cli.os, "_exit", fake_exit)
+
+
+@pytest.mark.parametrize("args, code", [
+    (["check", str(EXAMPLE)], 0),
+    (["check", str(ROOT / "examples" / "no-such.loom")], 2),
+    (["compile", str(EXAMPLE)], 2),  # --out missing: a usage error
+    (["--version"], 0),
+])
+def test_run_leaves_with_the_commands_exit_code(leave, monkeypatch, capsys, args, code) -> None:  # noqa: ANN001
+    monkeypatch.setattr(sys, "argv", ["scanloom", *args])
+    with pytest.raises(_Left) as left:
+        cli.run()
+    assert left.value.code == code
+    captured = capsys.readouterr()
+    assert captured.out or captured.err  # every command says something
+
+
+def test_a_message_given_to_sys_exit_is_printed_and_exits_1(leave, monkeypatch, capsys) -> None:  # noqa: ANN001
+    def failing() -> None:
+        sys.exit("scanloom: stopped")
+
+    monkeypatch.setattr(cli, "main", failing)
+    with pytest.raises(_Left) as left:
+        cli.run()
+    assert left.value.code == 1
+    assert capsys.readouterr().err == "scanloom: stopped\n"
+
+
+def test_the_module_as_a_program_prints_everything_before_it_exits(tmp_path: Path) -> None:
+    done = subprocess.run([sys.executable, "-m", "scanloom.cli", "compile", str(EXAMPLE), "--out",
+                           str(tmp_path), "--format", "json"], capture_output=True, text=True, check=False)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.endswith(f"  wrote {tmp_path / 'valve_nets.json'}\n")
+    assert (tmp_path / "valve_nets.json").stat().st_size > 0
