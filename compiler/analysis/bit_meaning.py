@@ -60,6 +60,7 @@ class ScanIndex:
         self.scans = [i for i, r in enumerate(program.records) if r.kind in (IR_SCAN, DR_SCAN)]
         self.starts = list(cycles.shift_starts)
         self._layouts: dict[int, tuple[list[int], list]] = {}  # type: ignore[type-arg]
+        self._checks: dict[int, dict[tuple[str, str], tuple[str | None, str | None]]] = {}
         self._cells: dict[str, dict[int, tuple[str | None, str | None]]] = {}
         for device in program.chain.devices:
             table: dict[int, tuple[str | None, str | None]] = {}
@@ -80,6 +81,17 @@ class ScanIndex:
             return BitMeaning(cycle, None, None)
         return self.scan_meaning(record_index, scan_bit, cycle)
 
+    def _checked_by(self, record_index: int) -> dict[tuple[str, str], tuple[str | None, str | None]]:
+        """(device, register) -> the test and step whose expectations a record compares there
+        (the first check of that register; a scan compares earlier steps' responses)."""
+        found = self._checks.get(record_index)
+        if found is None:
+            found = {}
+            for check in self.program.records[record_index].checks:
+                found.setdefault((check.device, check.register), (check.test, check.step))
+            self._checks[record_index] = found
+        return found
+
     def scan_meaning(self, record_index: int, scan_bit: int, cycle: int | None = None) -> BitMeaning:
         record = self.program.records[record_index]
         if cycle is None:
@@ -96,11 +108,8 @@ class ScanIndex:
                 port = net = None
                 if segment.register == "BOUNDARY":
                     port, net = self._cells.get(segment.device, {}).get(bit, (None, None))
-                test, step = record.test, record.step
-                for check in record.checks:
-                    if check.device == segment.device and check.register == segment.register:
-                        test, step = check.test, check.step
-                        break
+                test, step = self._checked_by(record_index).get(
+                    (segment.device, segment.register), (record.test, record.step))
                 return BitMeaning(cycle, record_index, scan_bit, segment.device, segment.register, bit,
                                   port, net, test, step or None)
         return BitMeaning(cycle, record_index, scan_bit, test=record.test, step=record.step)

@@ -16,6 +16,7 @@ floats; a bidirectional pin there reads its own output).
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 from typing import Iterable, Mapping
 
@@ -143,8 +144,23 @@ def capture_cells(device: DeviceModel, port: str) -> tuple[CaptureCell, ...]:
     """Cells of `port` that capture the pin under some instruction, one per cell number.
 
     A merged cell (two entries, one number) captures as its input-side entry: the pin is that
-    entry's parallel input (IEEE 1149.1-2001 BSDL, merged cells; from memory).
+    entry's parallel input (IEEE 1149.1-2001 BSDL, merged cells; from memory). Worked out
+    once per device model and port: a board repeats its parts.
     """
+    known = _CAPTURE_CELLS_OF_MODEL.get(device)
+    if known is None:
+        known = _CAPTURE_CELLS_OF_MODEL[device] = {}
+    found = known.get(port)
+    if found is None:
+        found = known[port] = _capture_cells(device, port)
+    return found
+
+
+_CAPTURE_CELLS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, dict[str, tuple[CaptureCell, ...]]]" = \
+    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
+
+
+def _capture_cells(device: DeviceModel, port: str) -> tuple[CaptureCell, ...]:
     by_number: dict[int, CaptureCell] = {}
     for cell in device.cells_of(port):
         info = cell_info_of(device, cell.cell_type)
