@@ -32,7 +32,10 @@ REFERENCE = _reference_parser()
 
 names = st.sampled_from(["N0", "VALVE_D7", "x", "_a1", "U1.PA(0)", "U12.Q(31)", "U3.EN", "X", "Z"])
 gaps = st.sampled_from(["", " ", "  ", "\t", " # note, U9.Y(1)\n", "\n", "\n    ", "\r\n  ",
-                        "\n  # a comment line\n  ", " \n"])
+                        "\n  # a comment line\n  ", " \n",
+                        # A comment runs to the end of its line, whatever it holds: a "]" or a
+                        # name in it neither closes the list nor adds a member.
+                        " # was [N0, N1]", "  #B", " # old ] list\n", "#x]\n  "])
 
 
 @st.composite
@@ -70,6 +73,14 @@ def _ours(text: str):  # noqa: ANN202
 @given(group_texts())
 def test_member_lists_parse_like_the_general_rule(text):
     assert _ours(text) == _reference(text)
+
+
+def test_a_bracket_in_a_comment_does_not_close_the_list():
+    # The list is never closed: the general rule reports it, and so must the shortcut.
+    text = "group G = [N0, N1  # was [N0, N1, N2]\ngroup H = [A]\n"
+    assert _reference(text) is None and _ours(text) is None
+    closed = "group G = [N0,  # was [N0, N1]\n    N1]\n"
+    assert _ours(closed) == _reference(closed) is not None
 
 
 def test_a_list_with_a_slice_takes_the_general_rule():
