@@ -264,6 +264,16 @@ def test_same_value_twice_is_not_a_conflict():
     assert len(program.tests[0].steps[0].drives) == 1
 
 
+def test_a_value_takes_the_place_of_a_dont_care_on_the_same_wire():
+    # X means "not compared", so it does not contradict an expected value; the value stays.
+    program, _ = run(step("        expect N0 = X, U2.A(0) = 0, N1 = 1, N[1] = X"))
+    expects = program.tests[0].steps[0].expects
+    assert [(e.target, e.value) for e in expects] == [("N1", "1"), ("U2.A(0)", "0")]
+    program, _ = run('test t "t" {\n    U1 EXTEST\n    U2 SAMPLE\n    table {\n        N -> N0 U2.A(0)\n'
+                     "        0b001 -> X 1\n    }\n}\n")
+    assert [(e.target, e.value) for e in program.tests[0].steps[0].expects] == [("U2.A(0)", "1")]
+
+
 # ---- register access --------------------------------------------------------------------------
 
 def test_reading_through_an_instruction_that_does_not_select_the_register():
@@ -334,6 +344,19 @@ def test_table_column_that_cannot_be_driven_is_reported_once():
     errors = [x for x in d if x.severity == "error"]
     assert len(errors) == 1
     one(d, "error", 4, 9, r"no device in a driving mode can drive N0")
+
+
+def test_table_column_released_in_every_row_needs_no_driver():
+    # A release (Z) drives nothing, as `release` in a step; the first row that drives a value
+    # where no device can is reported, once, at the column.
+    d = diagnose('test t "t" {\n    U2 SAMPLE\n    table {\n        LAMP -> N0\n        Z -> X\n'
+                 "        Z -> 1\n    }\n}\n")
+    assert [x for x in d if x.severity == "error"] == []
+    d = diagnose('test t "t" {\n    U2 SAMPLE\n    table {\n        LAMP -> N0\n        Z -> X\n'
+                 "        1 -> 1\n        1 -> 0\n    }\n}\n")
+    errors = [x for x in d if x.severity == "error"]
+    assert len(errors) == 1
+    one(d, "error", 4, 9, r"no device in a driving mode can drive LAMP")
 
 
 def test_mode_line_with_no_step_after_it_and_empty_test_warn():

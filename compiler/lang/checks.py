@@ -466,11 +466,13 @@ class _TestChecker:
 
     def no_conflicts(self, assigned: Sequence[tuple[ast.Signal, Assigned]], what: str,
                      step: str, where: SourceSpan | None = None) -> tuple[Assigned, ...]:
-        """Two different values for one net in one step is an error; repeats are merged."""
+        """Two different values for one net in one step is an error; repeats are merged, and
+        an expected value takes the place of a don't-care (X) on the same wire."""
         keys = [key for _, item in assigned for key in item.column.keys]
         if len(set(keys)) == len(keys):
             return tuple(item for _, item in assigned)
         seen: dict[str, BitValue] = {}
+        place: dict[str, int] = {}  # key -> its position in `flat`
         flat: list[Assigned] = []
         for _signal, item in assigned:
             for entry in item.entries():
@@ -478,7 +480,12 @@ class _TestChecker:
                 previous = seen.get(bit.key)
                 if previous is None:
                     seen[bit.key] = entry
+                    place[bit.key] = len(flat)
                     flat.append(Assigned(self.column((bit,)), value, span))
+                elif previous[1] != value and what == "expects" and "X" in (previous[1], value):
+                    if previous[1] == "X":
+                        seen[bit.key] = entry
+                        flat[place[bit.key]] = Assigned(self.column((bit,)), value, span)
                 elif previous[1] != value:
                     verb = "driven" if what == "drives" else "expected"
                     self.diag.error(f"{bit.key} is {verb} to two different values in step {step}: "
@@ -488,13 +495,15 @@ class _TestChecker:
         return tuple(flat)
 
     def check_drivable(self, signal: ast.Signal, assigned: Assigned,
-                       key: tuple[tuple[str, str], ...], modes: dict[str, str]) -> None:
+                       key: tuple[tuple[str, str], ...], modes: dict[str, str]) -> bool:
+        """Report the bits no device can drive (a release needs no driver); True if any."""
         bits, values = assigned.column.bits, assigned.values
         failing = [bits[i] for i in self.undriven(assigned.column, key, modes) if values[i] != "Z"]
         if not failing:
-            return
+            return False
         self.diag.error(self.cannot_drive_message(signal, failing, assigned.column.width), signal.span,
                         hint=self.drive_hint(failing[0], modes), code="not_driving_mode")
+        return True
 
     def undriven(self, column: ColumnEntries, key: tuple[tuple[str, str], ...],
                  modes: dict[str, str]) -> tuple[int, ...]:
@@ -539,7 +548,8 @@ class _TestChecker:
         return f"{where} can drive it in EXTEST or CLAMP"
 
     def check_observed(self, signal: ast.Signal, assigned: Assigned, modes: dict[str, str],
-                       key: tuple[tuple[str, str], ...]) -> None:
+                       key: tuple[tuple[str, str], ...]) -> bool:
+        """Report expectations (not X) no device captures in these modes; True if any."""
         failing: list[BitRef] = []
         bypassed: list[BitRef] = []
         bits, values = assigned.column.bits, assigned.values
@@ -559,7 +569,7 @@ class _TestChecker:
                               hint=f"set {ref} to SAMPLE or another instruction that selects its "
                                    f"boundary register")
         if not failing:
-            return
+            return bool(bypassed)
         bit = failing[0]
         if bit.is_pin and len(failing) == 1 and len(bits) == 1:
             ref = bit.target.split(".", 1)[0]
@@ -572,7 +582,7 @@ class _TestChecker:
             else:
                 message = f"{bit.target} is not captured by {ref} in {modes[ref]}"
             self.diag.error(message, signal.span, code="cannot_capture")
-            return
+            return True
         of = f" ({len(failing)} of {len(bits)} bits of {signal_text(signal)})" if len(bits) > 1 else ""
         could = self.scope.could_observe(bit)
         if could:
@@ -582,6 +592,7 @@ class _TestChecker:
             hint = f"no scan device on {bit.target} has a cell that captures it"
         self.diag.error(f"no device in a capturing mode observes {_names(failing)}{of}",
                         signal.span, hint=hint, code="cannot_capture")
+        return True
 
     # ---- register access --------------------------------------------------------------------
     def register_accesses(self, accesses: list[tuple[ast.Read | ast.Write, str]],
@@ -680,14 +691,11 @@ class _TestChecker:
         expect_cols = [self.scope.signal(s, self.diag) for s in table.expect_columns]
         modes = dict(self.modes)
         key = self.modes_key(modes)
-        for signal, bits in zip(table.drive_columns, drive_cols):
-            if bits is not None:
-                self.check_drivable(signal, Assigned(self.column(bits), "0" * len(bits), None), key, modes)
-        for signal, bits in zip(table.expect_columns, expect_cols):
-            if bits is not None:
-                self.check_observed(signal, Assigned(self.column(bits), "0" * len(bits), None), modes, key)
         if any(c is None for c in drive_cols) or any(c is None for c in expect_cols):
             return
+        # Columns already reported as not drivable or not captured: once per table, at the
+        # header, for the first row whose values need it (a release or an X needs nothing).
+        reported: set[int] = set()
         columns = [self.column(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
         memo: dict[tuple, str] = {}
         n_drive, n_expect = len(drive_cols), len(expect_cols)
@@ -706,6 +714,12 @@ class _TestChecker:
                                      memo, n_drive)
             if drives is None or expects is None:
                 continue
+            for index, (signal, assigned) in enumerate(drives):
+                if index not in reported and self.check_drivable(signal, assigned, key, modes):
+                    reported.add(index)
+            for index, (signal, assigned) in enumerate(expects, start=n_drive):
+                if index not in reported and self.check_observed(signal, assigned, modes, key):
+                    reported.add(index)
             row_drives = self.no_conflicts(drives, "drives", name, row.span)
             row_expects = self.no_conflicts(expects, "expects", name, row.span)
             self.clamped_changes(drives, key, modes, row.span)
