@@ -7,6 +7,8 @@ import shutil
 from pathlib import Path
 
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from scanloom.diagnostics import Diagnostics, ScanloomError
 from scanloom.models.board import PinRef
@@ -123,3 +125,29 @@ def test_suggestion_for_misspelled_ref(tmp_path: Path) -> None:
 def test_missing_board_file_is_a_diagnostic(tmp_path: Path) -> None:
     with pytest.raises(ScanloomError, match="cannot read the board file"):
         load_board(tmp_path / "nowhere.yaml", Diagnostics())
+
+
+# ---- plain scalars: the quick string answer agrees with pyyaml's own resolver ----------------
+
+_SCALAR_WORDS = ["yes", "No", "TRUE", "off", "On", "null", "NULL", "y", "N", "Nx", "N1_0", "U1.PA(0)",
+                 "on_off", "true1", "0x1F", "1e3", "-5", "+.5", ".inf", ".NaN", "~", "=", "<<",
+                 "2026-12-01", "12:30", "0o17", "0b101", "_a", "o", "t", "F", "Off2"]
+
+
+@given(st.one_of(st.sampled_from(_SCALAR_WORDS),
+                 st.text(alphabet="aoyntfNOYTF01.+-_:~=<e ", min_size=1, max_size=6)
+                 .map(str.strip).filter(bool)))
+def test_plain_scalars_resolve_as_pyyaml_resolves_them(value: str) -> None:
+    # Oracle: pyyaml's SafeLoader and its YAML 1.1 implicit resolvers. The board loader answers
+    # "string" without the resolvers for names that cannot be anything else.
+    import yaml
+
+    from scanloom.models.yaml_nodes import _Composer
+
+    text = f"key: {value}\n"
+    try:
+        expected = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.YAMLError:
+        return  # not a plain scalar on its own
+    ours = yaml.compose(text, Loader=_Composer)
+    assert ours.value[0][1].tag == expected.value[0][1].tag

@@ -69,9 +69,14 @@ class PositionedYaml:
 
 
 _STR_TAG = "tag:yaml.org,2002:str"
-# A plain scalar can only be a number, bool, null, date, merge key or value indicator when it
-# starts with one of these characters (YAML 1.1 implicit resolvers, as pyyaml registers them).
-_MAYBE_TYPED = re.compile(r"[-+.0-9~=<yYnNtTfFoO]")
+# A plain scalar can only be a number, date, null, merge key or value indicator when it starts
+# with one of these characters (YAML 1.1 implicit resolvers, as pyyaml registers them) ...
+_MAYBE_TYPED = re.compile(r"[-+.0-9~=<]")
+# ... and, starting with a letter, only one of these words (bools and null; the one-letter
+# forms y/n too, which other YAML 1.1 readers take as bools).
+_TYPED_WORDS = frozenset(
+    "yes Yes YES no No NO true True TRUE false False FALSE on On ON off Off OFF null Null NULL "
+    "y Y n N".split())
 
 
 class _Composer(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):  # type: ignore[misc]
@@ -82,7 +87,8 @@ class _Composer(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):  # type: ignore[
     """
 
     def resolve(self, kind: type, value: Any, implicit: Any) -> str:
-        if kind is yaml.ScalarNode and implicit[0] and value and not _MAYBE_TYPED.match(value):
+        if kind is yaml.ScalarNode and implicit[0] and value and not _MAYBE_TYPED.match(value) \
+                and value not in _TYPED_WORDS:
             return _STR_TAG
         return super().resolve(kind, value, implicit)
 
