@@ -206,6 +206,7 @@ class _TestChecker:
         self.values: dict[tuple[ast.Value, int, str], str] = values
         self.columns = columns
         self.coverage: dict[tuple, tuple[int, ...]] = {}  # undriven / unobserved positions
+        self.distinct: dict[tuple[int, ...], bool] = {}  # columns that name no wire twice
         self.last_modes: dict[str, str] | None = None  # modes of the previous step
         self.state: dict[str, str] = {}  # net or pin -> value driven so far in this test
 
@@ -468,8 +469,12 @@ class _TestChecker:
                      step: str, where: SourceSpan | None = None) -> tuple[Assigned, ...]:
         """Two different values for one net in one step is an error; repeats are merged, and
         an expected value takes the place of a don't-care (X) on the same wire."""
-        keys = [key for _, item in assigned for key in item.column.keys]
-        if len(set(keys)) == len(keys):
+        layout = tuple(id(item.column) for _, item in assigned)  # columns live in self.columns
+        distinct = self.distinct.get(layout)
+        if distinct is None:
+            keys = [key for _, item in assigned for key in item.column.keys]
+            distinct = self.distinct[layout] = len(set(keys)) == len(keys)
+        if distinct:
             return tuple(item for _, item in assigned)
         seen: dict[str, BitValue] = {}
         place: dict[str, int] = {}  # key -> its position in `flat`

@@ -33,6 +33,7 @@ MIN_TCK_HZ = Fraction(1)
 MAX_TCK_HZ = Fraction(10**10)
 _HEX_BITS = {d: format(int(d, 16), "04b") for d in "0123456789ABCDEF"}
 _HEX_BITS.update({"X": "XXXX", "Z": "ZZZZ"})
+_HEX_DIGITS = frozenset(_HEX_BITS)
 
 
 def describe_value(value: ast.Value) -> str:
@@ -99,11 +100,11 @@ def _literal_bits(value: ast.Literal, width: int, target: str, span: SourceSpan 
             return None
         return digits
     if value.radix == 16:
-        if not digits or any(d not in _HEX_BITS for d in digits):
+        if not digits or not _HEX_DIGITS.issuperset(digits):
             diagnostics.error(f"malformed hex number {value.text}", span,
                               expected="hex digits 0-9, A-F, X or Z after 0x")
             return None
-        bits = "".join(_HEX_BITS[d] for d in digits)
+        bits = "".join(map(_HEX_BITS.__getitem__, digits))
         return _fit(bits, width, value.text, target, span, diagnostics)
     if not digits.isdigit():
         if "." in digits:
