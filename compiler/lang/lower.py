@@ -18,7 +18,7 @@ otherwise its bits are merged into a dictionary of the state in force.
 
 from __future__ import annotations
 
-from itertools import chain, repeat
+from itertools import chain
 from operator import getitem, itemgetter
 from typing import Callable, Sequence
 
@@ -26,6 +26,7 @@ from ..collector import collector_paused
 from ..diagnostics import SourceSpan
 from ..ir import (
     ChainScan, Drive, Expect, Program, RegisterRead, RegisterWrite, Step, TapReset, Test, TestItem, Wait,
+    drives_of, expects_of,
 )
 from ..models.board import Board
 from .checks import (
@@ -81,8 +82,8 @@ class _Records:
     def drives(self, assigned: Assigned, modes: Modes) -> tuple[Drive, ...]:
         column = assigned.column
         if assigned.span is not None:
-            return tuple(map(Drive, column.targets, column.pins, assigned.values,
-                             self.column_drivers(column, modes), repeat(assigned.span)))
+            return drives_of(column.targets, column.pins, assigned.values,
+                             self.column_drivers(column, modes), assigned.span)
         key = (modes, id(column))
         choices = self.drive_choices.get(key)
         if choices is None:
@@ -95,7 +96,7 @@ class _Records:
     def expects(self, assigned: Assigned) -> tuple[Expect, ...]:
         column = assigned.column
         if assigned.span is not None:
-            return tuple(map(Expect, column.targets, column.pins, assigned.values, repeat(assigned.span)))
+            return expects_of(column.targets, column.pins, assigned.values, assigned.span)
         choices = self.expect_choices.get(id(column))
         if choices is None:
             choices = self.expect_choices[id(column)] = _Choices(column, lambda char: tuple(
