@@ -426,8 +426,11 @@ def run() -> None:
         if code is not None and not isinstance(code, int):
             print(code, file=sys.stderr)  # what sys.exit("message") prints
             code = 1
-        sys.stdout.flush()
-        sys.stderr.flush()
+        for stream in (sys.stdout, sys.stderr):
+            try:
+                stream.flush()
+            except OSError:  # a reader that went away (| head): nothing more to tell it
+                pass
         os._exit(code or 0)
 
 

@@ -59,6 +59,31 @@ def test_a_message_given_to_sys_exit_is_printed_and_exits_1(leave, monkeypatch, 
     assert capsys.readouterr().err == "scanloom: stopped\n"
 
 
+def test_a_reader_that_went_away_does_not_turn_the_exit_into_a_traceback(leave, monkeypatch) -> None:  # noqa: ANN001
+    class Gone:
+        def write(self, text: str) -> int:
+            return len(text)
+
+        def flush(self) -> None:
+            raise BrokenPipeError(32, "Broken pipe")
+
+    def done() -> None:
+        sys.exit(0)
+
+    monkeypatch.setattr(cli, "main", done)
+    monkeypatch.setattr(sys, "stdout", Gone())
+    with pytest.raises(_Left) as left:
+        cli.run()
+    assert left.value.code == 0
+
+
+def test_output_into_a_closed_pipe_ends_quietly() -> None:
+    # `scanloom ... | head -1`: the reader stops early; no traceback, exit code 0 or 1.
+    done = subprocess.run(f"{sys.executable} -m scanloom.cli check --dump-ir {EXAMPLE} | head -c 1",
+                          shell=True, capture_output=True, text=True, check=False)
+    assert "Traceback" not in done.stderr
+
+
 def test_the_module_as_a_program_prints_everything_before_it_exits(tmp_path: Path) -> None:
     done = subprocess.run([sys.executable, "-m", "scanloom.cli", "compile", str(EXAMPLE), "--out",
                            str(tmp_path), "--format", "json"], capture_output=True, text=True, check=False)
