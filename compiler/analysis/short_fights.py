@@ -10,7 +10,6 @@ will really spend at the program's TCK.
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
 
 from bitarray import bitarray
@@ -21,6 +20,7 @@ from ..backend.records import DR_SCAN, IR_SCAN, RESET, ScanProgram
 from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells
 from ..models.device import DeviceModel
+from ..models.model_memo import per_model
 from ..safety_checks import Finding
 from ..sim.faults import adjacent_pin_pairs
 
@@ -65,23 +65,19 @@ def _adjacent_outputs(board: Board) -> list[tuple[_Output, _Output]]:
 
 
 _Cells = tuple[int, "int | None", "int | None"]  # data cell, control cell, disable value
-_DRIVER_PAIRS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, tuple[tuple[str, str, _Cells, _Cells], ...]]" = \
-    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
 
 
+@per_model
 def _driver_pairs(device: DeviceModel) -> tuple[tuple[str, str, _Cells, _Cells], ...]:
     """The device's neighbouring pins that both have an output cell, with their first cells."""
-    found = _DRIVER_PAIRS_OF_MODEL.get(device)
-    if found is None:
-        pairs = []
-        for port_a, port_b in adjacent_pin_pairs(device):
-            cells_a, cells_b = driver_cells(device, port_a), driver_cells(device, port_b)
-            if cells_a and cells_b:
-                a, b = cells_a[0], cells_b[0]
-                pairs.append((port_a, port_b, (a.number, a.control_cell, a.disable_value),
-                              (b.number, b.control_cell, b.disable_value)))
-        found = _DRIVER_PAIRS_OF_MODEL[device] = tuple(pairs)
-    return found
+    pairs = []
+    for port_a, port_b in adjacent_pin_pairs(device):
+        cells_a, cells_b = driver_cells(device, port_a), driver_cells(device, port_b)
+        if cells_a and cells_b:
+            a, b = cells_a[0], cells_b[0]
+            pairs.append((port_a, port_b, (a.number, a.control_cell, a.disable_value),
+                          (b.number, b.control_cell, b.disable_value)))
+    return tuple(pairs)
 
 
 class _PairTable:

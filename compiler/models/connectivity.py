@@ -9,12 +9,12 @@ cell descriptions). Nets joined through series parts (resistor packs, jumpers) a
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
 
 from .board import Board, Net, PinRef
 from .cells import PIN, resolve_capture
 from .device import DRIVER_FUNCTIONS, RECEIVER_FUNCTIONS, BoundaryCell, DeviceModel
+from .model_memo import per_model
 
 __all__ = ["NetRoles", "net_roles", "series_groups", "receiver_cells", "driver_cells", "NET_KINDS"]
 
@@ -35,17 +35,14 @@ def driver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
     return device.driver_cells_by_port.get(port, ())
 
 
-_RECEIVERS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, dict[str, tuple[BoundaryCell, ...]]]" = \
-    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
-
-
 def receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
     """Cells of `port` that capture the pin under EXTEST or SAMPLE."""
-    known = _RECEIVERS_OF_MODEL.get(device)
-    if known is None:
-        known = {p: _receiver_cells(device, p) for p in device.cells_by_port}
-        _RECEIVERS_OF_MODEL[device] = known
-    return known.get(port, ())
+    return _receivers_by_port(device).get(port, ())
+
+
+@per_model
+def _receivers_by_port(device: DeviceModel) -> dict[str, tuple[BoundaryCell, ...]]:
+    return {port: _receiver_cells(device, port) for port in device.cells_by_port}
 
 
 def _receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:

@@ -16,7 +16,6 @@ floats; a bidirectional pin there reads its own output).
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
 from typing import Iterable, Mapping
 
@@ -24,6 +23,7 @@ from ..diagnostics import Diagnostics
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, STANDARD_CELLS, resolve_capture
 from ..models.device import DRIVER_FUNCTIONS, CellInfo, DeviceModel
+from ..models.model_memo import per_model
 from .logic import PartLogic, parse_part_logic
 
 __all__ = [
@@ -147,17 +147,16 @@ def capture_cells(device: DeviceModel, port: str) -> tuple[CaptureCell, ...]:
     entry's parallel input (IEEE 1149.1-2001 BSDL, merged cells; from memory). Worked out
     once per device model and port: a board repeats its parts.
     """
-    known = _CAPTURE_CELLS_OF_MODEL.get(device)
-    if known is None:
-        known = _CAPTURE_CELLS_OF_MODEL[device] = {}
+    known = _capture_cells_by_port(device)
     found = known.get(port)
     if found is None:
         found = known[port] = _capture_cells(device, port)
     return found
 
 
-_CAPTURE_CELLS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, dict[str, tuple[CaptureCell, ...]]]" = \
-    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
+@per_model
+def _capture_cells_by_port(device: DeviceModel) -> dict[str, tuple[CaptureCell, ...]]:
+    return {}  # filled port by port as they are asked for
 
 
 def _capture_cells(device: DeviceModel, port: str) -> tuple[CaptureCell, ...]:

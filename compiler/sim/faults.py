@@ -20,7 +20,6 @@ other) for ball grids such as "A1", "B2".
 from __future__ import annotations
 
 import re
-import weakref
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Sequence
@@ -28,6 +27,7 @@ from typing import Iterable, Sequence
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, nearest, read_source
 from ..models.board import PinRef
 from ..models.device import DeviceModel
+from ..models.model_memo import per_model
 from .electrical import ElectricalBoard
 
 __all__ = [
@@ -369,19 +369,13 @@ def adjacent_pin_pairs(device: DeviceModel) -> list[tuple[str, str]]:
     rows lettered as JEDEC does (no I, O, Q, S, X or Z: H is next to J). Worked out once per
     device model: a board repeats its parts, and grading, checks and diagnosis all ask.
     """
-    pairs = _PAIRS_OF_MODEL.get(device)
-    if pairs is None:
-        pairs = _PAIRS_OF_MODEL[device] = tuple(_adjacent_pairs(device))
-    return list(pairs)
+    return list(_adjacent_pairs(device))
 
 
-_PAIRS_OF_MODEL: "weakref.WeakKeyDictionary[DeviceModel, tuple[tuple[str, str], ...]]" = \
-    weakref.WeakKeyDictionary()  # per device model, for as long as the model lives
-
-
-def _adjacent_pairs(device: DeviceModel) -> list[tuple[str, str]]:
+@per_model
+def _adjacent_pairs(device: DeviceModel) -> tuple[tuple[str, str], ...]:
     if device.pin_map_name is None:
-        return []
+        return ()
     pins: dict[str, str] = {}
     for port, package_pins in device.pin_maps.get(device.pin_map_name, {}).items():
         for pin in package_pins:
@@ -409,7 +403,7 @@ def _adjacent_pairs(device: DeviceModel) -> list[tuple[str, str]]:
         below = row_at.get(index_of[row] + 1)  # type: ignore[operator]
         if below is not None and (below, column) in grid:
             pairs.append((port, grid[(below, column)]))
-    return pairs
+    return tuple(pairs)
 
 
 def fault_universe(electrical: ElectricalBoard, classes: Iterable[str] = UNIVERSE_CLASSES) -> tuple[Fault, ...]:
