@@ -32,7 +32,7 @@ from ..models.board import Board
 from .checks import (
     Assigned, BitValue, ChainScanPlan, ColumnEntries, ProgramPlan, ResetPlan, StepPlan, TestPlan, WaitPlan,
 )
-from .resolve import Scope
+from .resolve import BitRef, Scope
 
 __all__ = ["lower_program"]
 
@@ -66,18 +66,22 @@ class _Records:
         self.drive_choices: dict[tuple[Modes, int], _Choices] = {}
         self.expect_choices: dict[int, _Choices] = {}
         self.gathers: dict[tuple[int, ...], _Gather] = {}
+        self.mode_names: dict[Modes, dict[str, str]] = {}
 
     def column_drivers(self, column: ColumnEntries, modes: Modes) -> tuple[str | None, ...]:
         """The scan pin chosen for each bit of a column under these modes."""
         key = (modes, id(column))
         found = self.drivers.get(key)
         if found is None:
-            chosen = self.scope.driver_choices(modes)
-            by_name = dict(modes)
-            found = self.drivers[key] = tuple(
-                chosen[bit.target] if bit.target in chosen else self.scope.choose_driver(bit, modes, by_name)
-                for bit in column.bits)
+            found = self.drivers[key] = tuple(self.driver(bit, modes) for bit in column.bits)
         return found
+
+    def driver(self, bit: BitRef, modes: Modes) -> str | None:
+        """The scan pin that drives `bit` under these modes (the scope remembers its choices)."""
+        by_name = self.mode_names.get(modes)
+        if by_name is None:
+            by_name = self.mode_names[modes] = dict(modes)
+        return self.scope.choose_driver(bit, modes, by_name)
 
     def drives(self, assigned: Assigned, modes: Modes) -> tuple[Drive, ...]:
         column = assigned.column
@@ -103,11 +107,9 @@ class _Records:
                 self.shared_expect(target, pin, char) for target, pin in zip(column.targets, column.pins)))
         return choices.pick(assigned.values)
 
-    def drive(self, bit, value: str, span: SourceSpan | None, modes: Modes) -> Drive:  # noqa: ANN001
+    def drive(self, bit: BitRef, value: str, span: SourceSpan | None, modes: Modes) -> Drive:
         """One bit's drive (the general path, bit by bit)."""
-        chosen = self.scope.driver_choices(modes)
-        driver = chosen[bit.target] if bit.target in chosen else \
-            self.scope.choose_driver(bit, modes, dict(modes))
+        driver = self.driver(bit, modes)
         if span is not None:
             return Drive(bit.target, bit.is_pin, value, driver, span)
         return self.shared_drive(bit.target, bit.is_pin, value, driver)

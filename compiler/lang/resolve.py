@@ -341,14 +341,6 @@ class Scope:
             return pin.port in self.core_input_ports(pin.ref)
         return False
 
-    def driver_choices(self, modes_key: tuple[tuple[str, str], ...]) -> dict[str, str | None]:
-        """The drivers already chosen under these modes, by target (a step of thousands of
-        drives looks them up here instead of hashing the modes once per drive)."""
-        chosen = self._driver_choice.get(modes_key)
-        if chosen is None:
-            chosen = self._driver_choice.setdefault(modes_key, {})
-        return chosen
-
     def choose_driver(self, bit: BitRef, modes_key: tuple[tuple[str, str], ...],
                       modes: Modes) -> str | None:
         """The scan pin that drives `bit`: the named pin, else the first capable one in chain order.
