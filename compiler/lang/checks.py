@@ -528,9 +528,8 @@ class _TestChecker:
         memo_key = ("observe", key, id(column))
         found = self.coverage.get(memo_key)
         if found is None:
-            observers = self.scope.observers
-            found = self.coverage[memo_key] = tuple(
-                i for i, bit in enumerate(column.bits) if not observers(bit, modes, key))
+            seen = self.scope.observed_by_any(column.bits, modes)
+            found = self.coverage[memo_key] = tuple(i for i, ok in enumerate(seen) if not ok)
         return found
 
     def cannot_drive_message(self, signal: ast.Signal, failing: list[BitRef], width: int) -> str:

@@ -9,7 +9,7 @@ with "did you mean" from the names in scope.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable, Iterable, Mapping
+from typing import Callable, Iterable, Mapping, Sequence
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
 from ..models.board import Board, PinRef
@@ -77,7 +77,6 @@ class Scope:
         # modes of a step -> target -> chosen driver: one dictionary per set of modes, so the
         # lookup per driven bit is a plain string key (tens of thousands of bits per step).
         self._driver_choice: dict[tuple[tuple[str, str], ...], dict[str, str | None]] = {}
-        self._observer_choice: dict[tuple[tuple[tuple[str, str], ...], str], tuple[str, ...]] = {}
         self._signals: dict[ast.Signal, tuple[BitRef, ...]] = {}
 
     # ---- groups -----------------------------------------------------------------------------
@@ -371,23 +370,26 @@ class Scope:
         chosen[bit.target] = choice
         return choice
 
-    def observers(self, bit: BitRef, modes: Modes,
-                  modes_key: tuple[tuple[str, str], ...] | None = None) -> tuple[str, ...]:
-        """Scan pins that capture `bit` in these modes (`modes_key`, when given, caches it)."""
-        if modes_key is not None:
-            cache_key = (modes_key, bit.target)
-            known = self._observer_choice.get(cache_key)
-            if known is None:
-                known = self._observer_choice[cache_key] = self.observers(bit, modes)
-            return known
-        pins = (PinRef.parse(bit.target),) if bit.is_pin else self.scan_pins(bit.target)
-        found = []
-        for pin in pins:
-            device = self.devices[pin.ref].device
-            mode = modes[pin.ref]
-            if observes_pins(device, mode) and pin.port in self.observed_ports(pin.ref, mode):
-                found.append(str(pin))
-        return tuple(found)
+    def observed_by_any(self, bits: Sequence[BitRef], modes: Modes) -> list[bool]:
+        """For each bit, whether some scan pin captures it in these modes: `observers`
+        reduced to a yes or no, for whole columns (no sorting, no pin names)."""
+        observing: dict[str, frozenset[str]] = {}
+        for ref, mode in modes.items():
+            entry = self.devices.get(ref)
+            if entry is not None and observes_pins(entry.device, mode):
+                observing[ref] = self.observed_ports(ref, mode)
+        nets = self.nets
+        none: frozenset[str] = frozenset()
+        out: list[bool] = []
+        for bit in bits:
+            if bit.is_pin:
+                ref, _, port = bit.target.partition(".")
+                out.append(port in observing.get(ref, none))
+            else:
+                net = nets.get(bit.target)
+                out.append(net is not None and any(
+                    pin.port in observing.get(pin.ref, none) for pin in net.pins))
+        return out
 
     def could_observe(self, bit: BitRef) -> tuple[str, ...]:
         """Devices that could capture `bit` under SAMPLE, whatever their mode now."""
