@@ -95,6 +95,11 @@ class ScanloomError(Exception):
     def render(self) -> str:
         return render_all(self.diagnostics, self.sources)
 
+    def __reduce__(self) -> tuple[type, tuple[tuple[Diagnostic, ...], dict[str, str]]]:
+        # Pickled whole (a worker process sends its errors back); Exception's own reduce
+        # would rebuild it from the first message alone.
+        return type(self), (self.diagnostics, self.sources)
+
 
 @dataclass
 class Diagnostics:

@@ -3,6 +3,8 @@
 `check_source_program` is what `scanloom check` runs; `compile_program` is `scanloom
 compile`: it refuses on errors, lays out the TAP cycles, replays them independently (a
 mismatch there is a compiler bug and stops the compile loudly) and writes the outputs.
+The checks that need the IR alone run in a forked process while the scheduler works
+(scanloom.forked); the outcome is the same as running them one after the other.
 """
 
 from __future__ import annotations
@@ -10,12 +12,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
-from .analysis.prehardware import CheckReport, check_program, report_findings
+from .analysis.prehardware import CheckReport, check_ir, check_program, report_findings
 from .backend.cycle_stream import CycleStream
 from .backend.cycles import lay_out_cycles
 from .backend.records import ScanProgram
 from .backend.schedule import schedule
 from .diagnostics import Diagnostic, Diagnostics, ScanloomError
+from .forked import run_forked
 from .ir import COMPUTED, Program
 from .lang.frontend import load_program
 from .models.board import Board
@@ -73,9 +76,10 @@ def _front_to_cycles(path: str | Path, diagnostics: Diagnostics, board_override:
     program, board = load_program(path, diagnostics, board_override)
     validate_board_logic(board, diagnostics)
     values = _computed_expectations(program, board) if computed else {}
+    ir_checks = run_forked(check_ir, program, board)  # on the other core, beside the scheduler
     scan = schedule(program, board, values)
     cycles = lay_out_cycles(scan)
-    report = check_program(program, board, scan, cycles)
+    report = check_program(program, board, scan, cycles, ir_findings=ir_checks.result())
     report_findings(report, diagnostics)
     scan = replace(scan, notes=tuple(scan.notes) + tuple(report.allowed_notes()))
     return CheckedProgram(program, board, report), scan, cycles

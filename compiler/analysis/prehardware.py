@@ -21,7 +21,8 @@ from .floating import check_floating_expectations
 from .short_fights import check_short_fights
 from .sequencing import check_compliance, check_preload, check_self_test_idle, check_tck
 
-__all__ = ["CheckReport", "RECORD_CHECKS", "check_program", "check_records", "report_findings"]
+__all__ = ["CheckReport", "RECORD_CHECKS", "check_ir", "check_program", "check_records", "check_scheduled",
+           "report_findings"]
 
 RECORD_CHECKS = ("no_preload",)  # what `check_records` can find on shift records alone
 
@@ -38,8 +39,20 @@ class CheckReport:
 
 
 def check_program(program: Program, board: Board, scan: ScanProgram | None = None,
-                  cycles: CycleStream | None = None) -> CheckReport:
-    """Every check on a program; those that need the records or the cycles run when given."""
+                  cycles: CycleStream | None = None,
+                  ir_findings: list[Finding] | None = None) -> CheckReport:
+    """Every check on a program; those that need the records or the cycles run when given.
+
+    `ir_findings` are those of `check_ir` when the caller ran it already (alongside the
+    scheduler, on the other core)."""
+    findings = list(ir_findings) if ir_findings is not None else check_ir(program, board)
+    if scan is not None:
+        findings += check_scheduled(program, board, scan, cycles)
+    return _apply_overrides(program, findings)
+
+
+def check_ir(program: Program, board: Board) -> list[Finding]:
+    """The checks that need the program and the board only, overrides not yet applied."""
     findings: list[Finding] = []
     findings += check_tck(program, board)
     findings += check_compliance(program, board)
@@ -47,13 +60,18 @@ def check_program(program: Program, board: Board, scan: ScanProgram | None = Non
     findings += check_drive_hazards(program, board)
     findings += check_bypass_expectations(program, board)
     findings += check_floating_expectations(program, board)
-    if scan is not None:
-        findings += check_preload(scan)
-        if cycles is not None:
-            spans = {(t.name, s.name): s.span for t in program.tests for s in t.steps}
-            findings += check_short_fights(scan, cycles, board, program.tck_hz,
-                                           program.fight_limit_s, spans)
-    return _apply_overrides(program, findings)
+    return findings
+
+
+def check_scheduled(program: Program, board: Board, scan: ScanProgram,
+                    cycles: CycleStream | None = None) -> list[Finding]:
+    """The checks on the scheduled records (and the cycles when given), overrides not applied."""
+    findings = check_preload(scan)
+    if cycles is not None:
+        spans = {(t.name, s.name): s.span for t in program.tests for s in t.steps}
+        findings += check_short_fights(scan, cycles, board, program.tck_hz,
+                                       program.fight_limit_s, spans)
+    return findings
 
 
 def check_records(scan: ScanProgram) -> CheckReport:
