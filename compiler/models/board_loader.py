@@ -12,6 +12,7 @@ from typing import Any
 from ..diagnostics import Diagnostics, SourceSpan, nearest, read_source
 from ..file_kinds import BOARD, misplaced_kind_error
 from .board import TECHNOLOGIES, Board, ChainDevice, Net, Part, PinRef
+from .board_cache import BoardCache
 from .device import DeviceModel
 from .yaml_nodes import PositionedYaml, load_positioned_yaml
 
@@ -24,9 +25,18 @@ NET_KEYS = ("pins", "tap")
 
 
 def load_board(path: str | Path, diagnostics: Diagnostics) -> Board:
-    """Read and validate a board file and every BSDL file it names; raises ScanloomError."""
+    """Read and validate a board file and every BSDL file it names; raises ScanloomError.
+
+    A large board comes from the board cache (models.board_cache) while its files are
+    unchanged; the board, its warnings and its sources are the same either way.
+    """
     path = Path(path)
     file = str(path)
+    cache = BoardCache.from_environment()
+    if cache is not None:
+        cached = cache.load(file, diagnostics)
+        if cached is not None:
+            return cached
     try:
         text = read_source(path)
     except OSError as exc:
@@ -34,7 +44,14 @@ def load_board(path: str | Path, diagnostics: Diagnostics) -> Board:
                           hint="check the path; board files are YAML (DEVELOPERS.md)")
         diagnostics.raise_if_errors()
         raise  # unreachable: raise_if_errors raised
-    return parse_board(text, file, diagnostics)
+    sources_before = set(diagnostics.sources)
+    items_before = len(diagnostics.items)
+    board = parse_board(text, file, diagnostics)
+    if cache is not None:
+        sources = {name: source for name, source in diagnostics.sources.items()
+                   if name not in sources_before}
+        cache.store(file, board, diagnostics.items[items_before:], sources)
+    return board
 
 
 def parse_board(text: str, file: str, diagnostics: Diagnostics) -> Board:

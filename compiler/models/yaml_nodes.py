@@ -26,32 +26,48 @@ def _span(file: str, node: yaml.Node) -> SourceSpan:
 
 
 class NodeSpans(Mapping[str, SourceSpan]):
-    """Path ("nets/DATA0/1") -> span, made from the YAML node on first access."""
+    """Path ("nets/DATA0/1") -> span, made from the YAML node on first access.
 
-    def __init__(self, file: str, nodes: dict[str, yaml.Node]):
+    Pickled as the file's text alone (a board cache keeps boards on disk): the node tree is
+    composed again from it the first time a span is asked for, which is when an error or a
+    finding names a place in the board file.
+    """
+
+    def __init__(self, file: str, nodes: dict[str, yaml.Node] | None, text: str = ""):
         self.file = file
         self._nodes = nodes
+        self._text = text
+
+    def __reduce__(self) -> tuple[Any, tuple[str, None, str]]:
+        return NodeSpans, (self.file, None, self._text)
+
+    @property
+    def nodes(self) -> dict[str, yaml.Node]:
+        if self._nodes is None:
+            again = load_positioned_yaml(self._text, self.file, Diagnostics())
+            self._nodes = again.nodes if again is not None else {}
+        return self._nodes
 
     def __getitem__(self, key: str) -> SourceSpan:
-        return _span(self.file, self._nodes[key])
+        return _span(self.file, self.nodes[key])
 
     def __contains__(self, key: object) -> bool:
-        return key in self._nodes
+        return key in self.nodes
 
     def __iter__(self) -> Iterator[str]:
-        return iter(self._nodes)
+        return iter(self.nodes)
 
     def __len__(self) -> int:
-        return len(self._nodes)
+        return len(self.nodes)
 
 
 class PositionedYaml:
-    def __init__(self, data: Any, file: str):
+    def __init__(self, data: Any, file: str, text: str = ""):
         self.data = data
         self.file = file
         self.nodes: dict[str, yaml.Node] = {}
         self.key_nodes: dict[str, yaml.Node] = {}
-        self.spans = NodeSpans(file, self.nodes)
+        self.spans = NodeSpans(file, self.nodes, text)
 
     def span(self, *path: str | int) -> SourceSpan | None:
         key = "/".join(str(p) for p in path)
@@ -116,7 +132,7 @@ def load_positioned_yaml(text: str, file: str, diagnostics: Diagnostics) -> Posi
         diagnostics.error(f"the board file is not valid YAML: {problem}", span,
                           expected="a YAML mapping with keys such as board, chain and nets")
         return None
-    result = PositionedYaml(None, file)
+    result = PositionedYaml(None, file, text)
     loader = yaml.SafeLoader("")
     if root is None:
         return result
