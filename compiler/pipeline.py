@@ -10,6 +10,7 @@ The checks that need the IR alone run in a forked process while the scheduler wo
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from operator import attrgetter
 from pathlib import Path
 
 from .analysis.prehardware import CheckReport, check_ir, check_program, report_findings
@@ -26,6 +27,9 @@ from .sim.replay import ReplayReport, replay
 
 __all__ = ["CheckedProgram", "CompileResult", "CompilerBug", "check_source_program", "compile_program",
            "validate_board_logic"]
+
+
+_VALUE_OF = attrgetter("value")
 
 
 class CompilerBug(ScanloomError):
@@ -50,7 +54,8 @@ class CompileResult:
 
 def _computed_expectations(program: Program, board: Board) -> dict[tuple[str, str, str], str]:
     """Values for `computed` expectations, from the fault-free virtual board."""
-    needs = any(e.value == COMPUTED for t in program.tests for s in t.steps for e in s.expects)
+    needs = any(COMPUTED in map(_VALUE_OF, step.expects)
+                for test in program.tests for step in test.steps)
     if not needs:
         return {}
     from .analysis.computed import compute_expectations

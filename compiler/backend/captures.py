@@ -209,21 +209,21 @@ def compare_expectations(table: ExpectationTable, values: str, chain_image: bita
     if table.pins_one_each:
         owner_compared, owner_one = compared, ones
     else:
-        owner_compared = bitarray(map(compared.__getitem__, table.pin_owner))
-        owner_one = bitarray(map(ones.__getitem__, table.pin_owner))
+        owner_compared = compared[table.pin_owner]
+        owner_one = ones[table.pin_owner]
     mask[list(compress(table.pin_position, owner_compared))] = 1
     tdo[list(compress(table.pin_position, owner_one))] = 1
     latches = list(compress(table.latch_position,
-                            bitarray(map(compared.__getitem__, table.latch_owner))))
+                            compared[table.latch_owner]))
     unobserved: list[int] = []
     if table.dyn_position:
-        driving = bitarray(map(chain_image.__getitem__, table.dyn_control))
+        driving = bitarray(chain_image[table.dyn_control])
         driving ^= table.dyn_disable  # enabled where the control cell differs from its disable value
         idle = ~driving
         as_pin = (driving & table.dyn_pin_driving) | (idle & table.dyn_pin_idle)
         as_latch = (driving & table.dyn_latch_driving) | (idle & table.dyn_latch_idle)
-        dyn_compared = bitarray(map(compared.__getitem__, table.dyn_owner))
-        dyn_one = bitarray(map(ones.__getitem__, table.dyn_owner))
+        dyn_compared = compared[table.dyn_owner]
+        dyn_one = ones[table.dyn_owner]
         mask[list(compress(table.dyn_position, dyn_compared & as_pin))] = 1
         tdo[list(compress(table.dyn_position, dyn_one & as_pin))] = 1
         latches.extend(compress(table.dyn_position, dyn_compared & as_latch))
