@@ -14,6 +14,7 @@ step whose response they check through `checks`.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 from bitarray import bitarray
 
@@ -85,8 +86,10 @@ class ShiftRecord:
     use_trst: bool = False
 
 
-@dataclass(frozen=True, slots=True)
-class CellMeaning:
+class CellMeaning(NamedTuple):
+    """One boundary cell as the records see it. A named tuple: a large chain has a hundred
+    thousand of them, made every time a program is scheduled or a shift file read."""
+
     number: int
     cell_type: str
     function: str

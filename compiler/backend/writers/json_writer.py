@@ -35,7 +35,7 @@ def relative_posix(path: str, out_dir: Path) -> str:
     return PurePosixPath(*Path(relative).parts).as_posix()
 
 
-def _device_data(device: DeviceMap) -> dict[str, Any]:
+def _device_data(device: DeviceMap, quoted: "_Quoted | None" = None) -> dict[str, Any]:
     return {
         "ref": device.ref,
         "entity": device.entity,
@@ -47,7 +47,8 @@ def _device_data(device: DeviceMap) -> dict[str, Any]:
         "selects": dict(device.selects),
         "registers": dict(device.registers),
         "boundary_length": device.boundary_length,
-        "cells": [[cell.number, cell.cell_type, cell.function, cell.port, cell.net]
+        "cells": _rendered_cells(device, quoted) if quoted is not None else
+                 [[cell.number, cell.cell_type, cell.function, cell.port, cell.net]
                   for cell in device.cells],
     }
 
@@ -57,8 +58,21 @@ class _Rendered(list):
     of cells, so they skip the generic renderer)."""
 
 
-def _quote(text: str | None) -> str:
-    return "null" if text is None else encode_basestring_ascii(text)
+class _Quoted(dict):
+    """JSON text of a string or None, each distinct one encoded once (cell types, functions
+    and ports repeat across the cells of a chain)."""
+
+    def __missing__(self, text: str | None) -> str:
+        quoted = self[text] = "null" if text is None else encode_basestring_ascii(text)
+        return quoted
+
+
+def _rendered_cells(device: DeviceMap, q: _Quoted) -> _Rendered:
+    """The device's cells as their JSON lines, `[number, type, function, port, net]`."""
+    return _Rendered(
+        f"[{cell.number}, {q[cell.cell_type]}, {q[cell.function]}, {q[cell.port]}, "
+        f"{encode_basestring_ascii(cell.net) if cell.net is not None else 'null'}]"
+        for cell in device.cells)
 
 
 def _record_data(index: int, record: ShiftRecord) -> dict[str, Any]:
@@ -83,15 +97,18 @@ def _record_data(index: int, record: ShiftRecord) -> dict[str, Any]:
     }
 
 
-def shift_file_data(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> dict[str, Any]:
-    """The shift file as plain JSON data, keys in the documented order."""
+def shift_file_data(program: ScanProgram, cycles: CycleStream, out_dir: Path,
+                    *, rendered_cells: bool = False) -> dict[str, Any]:
+    """The shift file as plain JSON data, keys in the documented order (with each cell
+    already as its JSON line when `rendered_cells`, for the writer)."""
+    quoted = _Quoted() if rendered_cells else None
     return {
         "schema": SCHEMA,
         "version": SCHEMA_VERSION,
         "source": relative_posix(program.source, out_dir),
         "board": relative_posix(program.board, out_dir),
         "tck_hz": program.tck_hz,
-        "chain": [_device_data(device) for device in program.chain.devices],
+        "chain": [_device_data(device, quoted) for device in program.chain.devices],
         "records": [_record_data(index, record) for index, record in enumerate(program.records)],
         "cycles": {
             "count": cycles.count,
@@ -143,12 +160,7 @@ def _render(value: Any, depth: int) -> str:
 
 def render_shift_file(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> str:
     """The shift file's text: indented JSON, ASCII only, one final newline."""
-    data = shift_file_data(program, cycles, out_dir)
-    for device in data["chain"]:
-        device["cells"] = _Rendered(
-            f"[{number}, {_quote(cell_type)}, {_quote(function)}, {_quote(port)}, {_quote(net)}]"
-            for number, cell_type, function, port, net in device["cells"]
-        )
+    data = shift_file_data(program, cycles, out_dir, rendered_cells=True)
     return _render(data, 0) + "\n"
 
 
