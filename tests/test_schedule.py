@@ -530,3 +530,27 @@ def test_random_programs_keep_the_invariants(case) -> None:
     again = schedule(program, board)
     assert [(r.kind, r.tdi, r.tdo, r.mask) for r in again.records] == \
         [(r.kind, r.tdi, r.tdo, r.mask) for r in records]
+
+
+def test_a_cell_type_without_capture_description_is_noted_for_every_device_that_has_it() -> None:
+    # IEEE 1149.1-2001 Annex B: what a cell captures comes from its CELL_INFO; a cell type
+    # with none is not compared. Two devices of one part type each get their own note, the
+    # first device's first: the expectation table works a part type's cells out only once.
+    part = make_device("QUIRK", 2, cells=[(0, "XC_9", "A", "INPUT", "X"),
+                                          (1, "BC_4", "B", "INPUT", "X")])
+    driver = make_device("SRC", 2, cells=[(0, "BC_1", "Y", "OUTPUT2", "0"),
+                                          (1, "BC_1", "W", "OUTPUT2", "0")])
+    board = make_board([("U1", driver), ("U2", part), ("U3", part)],
+                       {"N1": ["U1.Y", "U2.A", "U3.A"], "N2": ["U1.W", "U2.B", "U3.B"]})
+    modes = modes_for(board, {"U1": "EXTEST", "U2": "EXTEST", "U3": "EXTEST"})
+    step = make_step("s", modes, [drive("N1", "1"), drive("N2", "0")],
+                     [expect("N1", "1"), expect("N2", "0")])
+    program = schedule(make_program([make_test("t", [step])]), board)
+    unknown = [n for n in program.notes if "no capture description" in n]
+    assert unknown == [
+        "U2: cell type XC_9 has no capture description; its cells capture X and are not compared",
+        "U3: cell type XC_9 has no capture description; its cells capture X and are not compared",
+    ]
+    # N2 is still compared on both BC_4 cells: the response scan masks them in.
+    response = next(r for r in program.records if r.kind == DR_SCAN and r.purpose == "flush")
+    assert response.mask.count() >= 2

@@ -119,6 +119,28 @@ class ExpectationTable:
     dynamic_only: tuple[int, ...]  # expectations observed by dynamic entries alone
 
 
+_NONE, _PIN, _LATCH, _DYNAMIC = range(4)
+
+
+def _how_observed(resolver: CaptureResolver, idx: int, tables: DeviceTables, cell: BoundaryCell,
+                  instruction: str, kind: str) -> tuple[int, str, str, bool]:
+    """Whether a cell captures its pin, its own update latch, one of the two depending on its
+    control cell (dynamic), or nothing the compiler knows; see build_expectation_table."""
+    info = tables.info(cell)
+    unknown = info is None or not info.known
+    idle = resolver.resolve(idx, tables, cell, instruction, False)
+    driving = idle
+    if can_drive(cell, kind):
+        driving = resolver.resolve(idx, tables, cell, instruction, True)
+        if cell.control_cell is None or cell.disable_value is None:
+            idle = driving  # a two-state output always drives in EXTEST
+        elif driving != idle:
+            comparable = is_comparable(driving) or is_comparable(idle)
+            return (_DYNAMIC if comparable else _NONE), driving, idle, unknown
+    code = _PIN if idle == PIN else _LATCH if idle == UPDATE else _NONE
+    return code, driving, idle, unknown
+
+
 def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], targets: list[str],
                             is_pin: Sequence[bool], receivers: Receivers,
                             tables: Sequence[DeviceTables], offsets: Sequence[int],
@@ -132,6 +154,11 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
     dyn: list[tuple[int, int, int, bool, str, str]] = []
     unobservable: list[int] = []
     dynamic_only: list[int] = []
+    # How a cell observes its pin under a device's mode and kind, worked out once per cell of
+    # a device model (boards repeat parts): (_NONE | _PIN | _LATCH | _DYNAMIC, captured while
+    # driving, captured while idle, whether its cell type has no capture description).
+    how_of: dict[tuple[int, str, str], tuple[int, str, str, bool]] = {}
+    unknown_types = resolver.unknown_types
     for owner, (target, pin) in enumerate(zip(targets, is_pin)):
         observed = False
         static = False
@@ -139,26 +166,26 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
             kind = kinds[idx]
             if kind not in BOUNDARY_KINDS:
                 continue
-            position = offsets[idx] + cell.number
-            idle = resolver.resolve(idx, tables[idx], cell, modes[idx], False)
-            if can_drive(cell, kind):
-                driving = resolver.resolve(idx, tables[idx], cell, modes[idx], True)
-                if cell.control_cell is None or cell.disable_value is None:
-                    idle = driving  # a two-state output always drives in EXTEST
-                elif driving != idle:
-                    if is_comparable(driving) or is_comparable(idle):
-                        dyn.append((position, owner, chain_starts[idx] + cell.control_cell,
-                                    bool(cell.disable_value), driving, idle))
-                        observed = True
-                    continue
-            if idle == PIN:
-                pin_position.append(position)
+            key = (id(cell), modes[idx], kind)
+            how = how_of.get(key)
+            if how is None:
+                how = how_of[key] = _how_observed(resolver, idx, tables[idx], cell, modes[idx], kind)
+            code, driving, idle, unknown = how
+            if unknown and (tables[idx].ref, cell.cell_type) not in unknown_types:
+                unknown_types.append((tables[idx].ref, cell.cell_type))
+            if code == _PIN:
+                pin_position.append(offsets[idx] + cell.number)
                 pin_owner.append(owner)
                 observed = static = True
-            elif idle == UPDATE:
-                latch_position.append(position)
+            elif code == _LATCH:
+                latch_position.append(offsets[idx] + cell.number)
                 latch_owner.append(owner)
                 observed = static = True
+            elif code == _DYNAMIC:
+                dyn.append((offsets[idx] + cell.number, owner,
+                            chain_starts[idx] + cell.control_cell,  # type: ignore[operator]
+                            bool(cell.disable_value), driving, idle))
+                observed = True
         if not observed:
             unobservable.append(owner)
         elif not static:
