@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import cached_property
+from typing import Any
 
 from ..diagnostics import SourceSpan
 
@@ -33,6 +34,12 @@ RECEIVER_FUNCTIONS = frozenset({"INPUT", "CLOCK", "BIDIR", "OBSERVE_ONLY"})
 CONTROL_FUNCTIONS = frozenset({"CONTROL", "CONTROLR"})
 
 
+def _by_fields(record: Any) -> tuple[type, tuple[Any, ...]]:
+    """Pickle a frozen slots record as a call with its fields: a board cache holds tens of
+    thousands of cells and ports, and the generic way restores each slot by name."""
+    return type(record), tuple(getattr(record, name) for name in record.__slots__)
+
+
 @dataclass(frozen=True, slots=True)
 class Port:
     """A port of the entity; `bits` lists the BSDL bit names, e.g. ("D(0)", "D(1)")."""
@@ -45,6 +52,9 @@ class Port:
     @property
     def width(self) -> int:
         return len(self.bits)
+
+    def __reduce__(self) -> tuple[type, tuple[Any, ...]]:
+        return _by_fields(self)
 
 
 @dataclass(frozen=True, slots=True)
@@ -60,6 +70,9 @@ class BoundaryCell:
     disable_value: int | None = None
     disable_result: str | None = None  # Z, WEAK0, WEAK1, PULL0, PULL1, KEEPER
     span: SourceSpan | None = field(default=None, compare=False)
+
+    def __reduce__(self) -> tuple[type, tuple[Any, ...]]:
+        return _by_fields(self)
 
     @property
     def drives_pin(self) -> bool:
