@@ -9,6 +9,7 @@ The checks that need the IR alone run in a forked process while the scheduler wo
 
 from __future__ import annotations
 
+from contextlib import suppress
 from dataclasses import dataclass, field, replace
 from operator import attrgetter
 from pathlib import Path
@@ -19,8 +20,9 @@ from .backend.cycles import lay_out_cycles
 from .backend.records import ScanProgram
 from .backend.schedule import schedule
 from .diagnostics import Diagnostic, Diagnostics, ScanloomError
-from .forked import run_forked
+from .forked import forking_possible, run_forked
 from .ir import COMPUTED, Program
+from .safety_checks import Finding
 from .lang.frontend import load_program
 from .models.board import Board
 from .sim.replay import ReplayReport, replay
@@ -76,18 +78,35 @@ def validate_board_logic(board: Board, diagnostics: Diagnostics) -> None:
         raise UnreadableInput(error.diagnostics, error.sources) from None
 
 
-def _front_to_cycles(path: str | Path, diagnostics: Diagnostics, board_override: str | Path | None,
-                     computed: bool) -> tuple[CheckedProgram, ScanProgram, CycleStream]:
+@dataclass
+class _Scheduled:
+    """A program scheduled and laid out, with the findings of the checks of its IR."""
+
+    program: Program
+    board: Board
+    scan: ScanProgram
+    cycles: CycleStream
+    ir_findings: list[Finding]
+
+
+def _front_to_schedule(path: str | Path, diagnostics: Diagnostics,
+                       board_override: str | Path | None, computed: bool) -> _Scheduled:
     program, board = load_program(path, diagnostics, board_override)
     validate_board_logic(board, diagnostics)
     values = _computed_expectations(program, board) if computed else {}
     ir_checks = run_forked(check_ir, program, board)  # on the other core, beside the scheduler
     scan = schedule(program, board, values)
     cycles = lay_out_cycles(scan)
-    report = check_program(program, board, scan, cycles, ir_findings=ir_checks.result())
+    return _Scheduled(program, board, scan, cycles, ir_checks.result())
+
+
+def _checked(done: _Scheduled, diagnostics: Diagnostics) -> tuple[CheckedProgram, ScanProgram]:
+    """The pre-hardware checks' findings reported; the records with the allowed ones noted."""
+    report = check_program(done.program, done.board, done.scan, done.cycles,
+                           ir_findings=done.ir_findings)
     report_findings(report, diagnostics)
-    scan = replace(scan, notes=tuple(scan.notes) + tuple(report.allowed_notes()))
-    return CheckedProgram(program, board, report), scan, cycles
+    scan = replace(done.scan, notes=tuple(done.scan.notes) + tuple(report.allowed_notes()))
+    return CheckedProgram(done.program, done.board, report), scan
 
 
 def check_source_program(path: str | Path, diagnostics: Diagnostics,
@@ -96,20 +115,58 @@ def check_source_program(path: str | Path, diagnostics: Diagnostics,
 
     Front-end errors raise; pre-hardware findings go into `diagnostics` (the caller decides).
     """
-    return _front_to_cycles(path, diagnostics, board_override, computed=False)[0]
+    return _checked(_front_to_schedule(path, diagnostics, board_override, computed=False),
+                    diagnostics)[0]
 
 
 def compile_program(path: str | Path, out_dir: str | Path, formats: set[str], diagnostics: Diagnostics,
                     board_override: str | Path | None = None) -> CompileResult:
-    checked, scan, cycles = _front_to_cycles(path, diagnostics, board_override, computed=True)
+    """Compile and write `formats` into `out_dir`, or raise with the errors found.
+
+    Once scheduled, the rest runs twice at once where it can (scanloom.forked): the checks,
+    the verdict and the replay are the same in both processes, and each writes its share of
+    the files only when they pass, as one process would.
+    """
+    from .backend.writers import FORMATS, check_formats, output_path, share_out
+
+    requested = check_formats(formats)
+    done = _front_to_schedule(path, diagnostics, board_override, computed=True)
+    stem, out = Path(path).stem, Path(out_dir)
+    aside, here = share_out(requested) if forking_possible() else \
+        ([], [name for name in FORMATS if name in requested])
+    # (in one process the checks must run once: they report into `diagnostics`)
+    pending = run_forked(_files_aside, done, diagnostics, out, stem, aside) if aside else None
+    try:
+        result = _finish(done, diagnostics, out, stem, here)
+    except BaseException:
+        if pending is not None:
+            with suppress(Exception):  # the same verdict there: it wrote nothing
+                pending.result()
+        raise
+    if pending is not None:
+        order = {output_path(out, stem, name): index for index, name in enumerate(FORMATS)}
+        result.written = sorted(result.written + pending.result(), key=order.__getitem__)
+    return result
+
+
+def _files_aside(done: _Scheduled, diagnostics: Diagnostics, out_dir: Path, stem: str,
+                 names: list[str]) -> list[Path]:
+    """`_finish` in the forked process: only the files it wrote travel back."""
+    return _finish(done, diagnostics, out_dir, stem, names).written
+
+
+def _finish(done: _Scheduled, diagnostics: Diagnostics, out_dir: Path, stem: str,
+            names: list[str]) -> CompileResult:
+    """Checks, verdict, replay, then the files of `names`."""
+    checked, scan = _checked(done, diagnostics)
     diagnostics.raise_if_errors()
-    report = replay(scan, cycles)
+    report = replay(scan, done.cycles)
     if not report.ok:
         raise CompilerBug([Diagnostic(
             "error", "internal error: the independent replay disagrees with the compiled scans",
             hint="this is a scanloom bug; please report it with the program and board\n"
                  + report.render(limit=20))])
-    from .backend.writers import write_outputs
+    from .backend.writers import write_formats
 
-    written = write_outputs(scan, cycles, Path(out_dir), Path(path).stem, formats)
-    return CompileResult(checked, scan, cycles, report, written)
+    written = write_formats(scan, done.cycles, out_dir, stem, names)
+    return CompileResult(checked, scan, done.cycles, report, written)

@@ -149,3 +149,22 @@ test fight "a shared enable turns on a sibling" {
     assert "[contention]" in one[1]
     assert one[1] == two[1]
     assert one[2] == two[2] == {}
+
+
+class _Disagreeing:
+    ok = False
+
+    def render(self, limit: int = 20) -> str:
+        return "record 3: TDO bit 7 differs"
+
+
+@pytest.mark.parametrize("jobs", ["1", None])
+def test_a_replay_that_disagrees_stops_the_compile_before_any_file(
+        jobs: str | None, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The replay's verdict is reached in both processes (the forked one inherits the same
+    # code), so neither writes its share of the files.
+    monkeypatch.setattr("scanloom.pipeline.replay", lambda scan, cycles: _Disagreeing())
+    code, output, files = _compile(DEMO / "valve_nets.loom", tmp_path / "out", monkeypatch, jobs)
+    assert code != 0
+    assert "independent replay disagrees" in output
+    assert files == {}

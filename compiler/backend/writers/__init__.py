@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Iterable, Iterator
+from typing import Iterable, Iterator, Sequence
 
 from ...collector import collector_paused
 from ...diagnostics import Diagnostic, ScanloomError, nearest
@@ -25,6 +25,8 @@ __all__ = [
     "output_path",
     "write_outputs",
     "check_formats",
+    "share_out",
+    "write_formats",
     "shift_file_data",
     "render_shift_file",
     "write_shift_file",
@@ -74,33 +76,36 @@ def write_outputs(program: ScanProgram, cycles: CycleStream, out_dir: Path, stem
     With more than one format, the files are shared out between this process and a forked
     one (scanloom.forked), about the same writing time each; the files are the same.
     """
-    requested = check_formats(formats)
+    aside, here = share_out(check_formats(formats))
     out_dir = Path(out_dir)
-    names = [name for name in FORMATS if name in requested]
-    with _reported_as(out_dir):
-        out_dir.mkdir(parents=True, exist_ok=True)
-    aside, here = _share_out(names)
-    pending = run_forked(_write_formats, program, cycles, out_dir, stem, aside) if aside else None
-    written = _write_formats(program, cycles, out_dir, stem, here)
+    pending = run_forked(write_formats, program, cycles, out_dir, stem, aside) if aside else None
+    written = write_formats(program, cycles, out_dir, stem, here)
     if pending is not None:
         written += pending.result()
-    order = {output_path(out_dir, stem, name): index for index, name in enumerate(names)}
+    order = {output_path(out_dir, stem, name): index for index, name in enumerate(FORMATS)}
     return sorted(written, key=order.__getitem__)
 
 
-def _share_out(names: list[str]) -> tuple[list[str], list[str]]:
-    """Two groups of formats of about equal writing time, the dearest first (greedy)."""
+def share_out(formats: Iterable[str]) -> tuple[list[str], list[str]]:
+    """The formats in two groups of about equal writing time, each in FORMATS order: the
+    first for a forked process (empty when one process should write everything)."""
+    names = [name for name in FORMATS if name in set(formats)]
     groups: tuple[list[str], list[str]] = ([], [])
     costs = [0, 0]
     for name in sorted(names, key=lambda n: -_WRITE_COST[n]):
         side = 0 if costs[0] <= costs[1] else 1
         groups[side].append(name)
         costs[side] += _WRITE_COST[name]
-    return groups if groups[1] else ([], groups[0])
+    aside, here = groups if groups[1] else ([], groups[0])
+    return sorted(aside, key=names.index), sorted(here, key=names.index)
 
 
-def _write_formats(program: ScanProgram, cycles: CycleStream, out_dir: Path, stem: str,
-                   names: list[str]) -> list[Path]:
+def write_formats(program: ScanProgram, cycles: CycleStream, out_dir: Path, stem: str,
+                  names: Sequence[str]) -> list[Path]:
+    """Write these formats of `program` here, in this process (the folder made if missing)."""
+    out_dir = Path(out_dir)
+    with _reported_as(out_dir):
+        out_dir.mkdir(parents=True, exist_ok=True)
     written: list[Path] = []
     with collector_paused():  # the writers build millions of small strings and lists
         for name in names:
