@@ -90,3 +90,21 @@ def test_the_module_as_a_program_prints_everything_before_it_exits(tmp_path: Pat
     assert done.returncode == 0, done.stderr
     assert done.stdout.endswith(f"  wrote {tmp_path / 'valve_nets.json'}\n")
     assert (tmp_path / "valve_nets.json").stat().st_size > 0
+
+
+def test_the_collector_stays_off_to_the_end(leave, monkeypatch, capsys) -> None:  # noqa: ANN001
+    # The command pauses the cycle collector; `run` leaves without switching it back on (a
+    # first pass over a large compile's objects would cost a third of a second).
+    import gc
+
+    seen = []
+    monkeypatch.setattr(sys, "argv", ["scanloom", "check", str(EXAMPLE)])
+    monkeypatch.setattr(cli.os, "_exit", lambda code: seen.append((code, gc.isenabled())))
+    was_enabled = gc.isenabled()
+    try:
+        cli.run()
+    finally:
+        if was_enabled:
+            gc.enable()
+    assert seen == [(0, False)]
+    capsys.readouterr()

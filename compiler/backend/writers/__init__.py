@@ -88,7 +88,9 @@ def write_outputs(program: ScanProgram, cycles: CycleStream, out_dir: Path, stem
 
 def share_out(formats: Iterable[str]) -> tuple[list[str], list[str]]:
     """The formats in two groups of about equal writing time, each in FORMATS order: the
-    first for a forked process (empty when one process should write everything)."""
+    first for a forked process (empty when one process should write everything), the second,
+    with the dearest format, for this one (a forked process runs slower at first: each page
+    of the parent's memory it touches is copied for it)."""
     names = [name for name in FORMATS if name in set(formats)]
     groups: tuple[list[str], list[str]] = ([], [])
     costs = [0, 0]
@@ -96,7 +98,7 @@ def share_out(formats: Iterable[str]) -> tuple[list[str], list[str]]:
         side = 0 if costs[0] <= costs[1] else 1
         groups[side].append(name)
         costs[side] += _WRITE_COST[name]
-    aside, here = groups if groups[1] else ([], groups[0])
+    here, aside = groups
     return sorted(aside, key=names.index), sorted(here, key=names.index)
 
 
