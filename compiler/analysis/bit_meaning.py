@@ -13,8 +13,25 @@ from dataclasses import dataclass
 from ..backend.cycle_stream import CycleStream
 from ..backend.records import DR_SCAN, IR_SCAN, ScanProgram
 
-__all__ = ["BitMeaning", "ScanIndex"]
+__all__ = ["BitMeaning", "CellPlaces", "ScanIndex", "cell_ports_and_nets"]
 
+
+
+CellPlaces = dict[str, dict[int, tuple[str | None, str | None]]]
+
+
+def cell_ports_and_nets(program: ScanProgram) -> CellPlaces:
+    """Device ref -> boundary cell number -> (port, net) of the cell, from the chain map; of a
+    merged cell's entries (one number, two functions) the one on a port."""
+    cells: CellPlaces = {}
+    for device in program.chain.devices:
+        table: dict[int, tuple[str | None, str | None]] = {}
+        for meaning in device.cells:
+            held = table.get(meaning.number)
+            if held is None or (held[0] is None and meaning.port is not None):
+                table[meaning.number] = (meaning.port, meaning.net)
+        cells[device.ref] = table
+    return cells
 
 @dataclass(frozen=True, slots=True)
 class BitMeaning:
@@ -61,14 +78,7 @@ class ScanIndex:
         self.starts = list(cycles.shift_starts)
         self._layouts: dict[int, tuple[list[int], list]] = {}  # type: ignore[type-arg]
         self._checks: dict[int, dict[tuple[str, str], tuple[str | None, str | None]]] = {}
-        self._cells: dict[str, dict[int, tuple[str | None, str | None]]] = {}
-        for device in program.chain.devices:
-            table: dict[int, tuple[str | None, str | None]] = {}
-            for meaning in device.cells:
-                held = table.get(meaning.number)
-                if held is None or (held[0] is None and meaning.port is not None):
-                    table[meaning.number] = (meaning.port, meaning.net)
-            self._cells[device.ref] = table
+        self._cells = cell_ports_and_nets(program)
 
     def meaning(self, cycle: int) -> BitMeaning:
         position = bisect_right(self.starts, cycle) - 1

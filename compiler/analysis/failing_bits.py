@@ -17,6 +17,7 @@ from bitarray import bitarray
 from ..backend.cycle_stream import CycleStream
 from ..backend.records import DR_SCAN, IR_SCAN, ScanProgram, Segment
 from ..models.board import Board
+from .bit_meaning import cell_ports_and_nets
 from .capture_log import CaptureLog
 
 __all__ = ["FailingBit", "Comparison", "compare_capture", "PASS_THROUGH"]
@@ -111,14 +112,7 @@ class _BitNamer:
         self.scans = [i for i, r in enumerate(program.records) if r.kind in (IR_SCAN, DR_SCAN)]
         self.starts = list(cycles.shift_starts)
         self.positions = {device.ref: device.position for device in program.chain.devices}
-        self.cells: dict[str, dict[int, tuple[str | None, str | None]]] = {}
-        for device in program.chain.devices:
-            table: dict[int, tuple[str | None, str | None]] = {}
-            for meaning in device.cells:
-                held = table.get(meaning.number)
-                if held is None or (held[0] is None and meaning.port is not None):
-                    table[meaning.number] = (meaning.port, meaning.net)
-            self.cells[device.ref] = table
+        self.cells = cell_ports_and_nets(program)
         self.board = board
         self._segments: dict[int, tuple[list[int], list[Segment]]] = {}
 
