@@ -7,6 +7,12 @@ are resolved: devices by chain ref, nets by board net name, pins as `REF.PORT`.
 Values are single characters: "0", "1", "Z" (released, drives only), "X" (don't care,
 expectations only). Register images are bit strings in BSDL order (leftmost = most
 significant bit = nearest TDI).
+
+A step's drives and expectations are sequences of `Drive` and `Expect` records, held as
+columns (`DriveColumns`, `ExpectColumns`): a step of a large board assigns tens of thousands
+of bits, and the columns of targets and drivers are shared between the steps that assign the
+same signals, so a step adds only its string of values. The back end and the checks read the
+columns; iterating gives the records.
 """
 
 from __future__ import annotations
@@ -15,13 +21,16 @@ import json
 from collections import deque
 from dataclasses import dataclass, field, fields, is_dataclass
 from itertools import repeat
-from typing import Any, Iterable, Sequence, Union
+from operator import attrgetter
+from typing import Any, Iterable, Iterator, Sequence, TypeVar, Union, overload
 
 from .diagnostics import SourceSpan
 
 __all__ = [
     "Drive",
     "Expect",
+    "DriveColumns",
+    "ExpectColumns",
     "RegisterWrite",
     "RegisterRead",
     "Step",
@@ -65,6 +74,174 @@ class Expect:
     is_pin: bool
     value: str
     span: SourceSpan | None = field(default=None, compare=False)
+
+
+_Record = TypeVar("_Record", Drive, Expect)
+
+
+class _Columns(Sequence[_Record]):
+    """Records of one kind held as columns, one entry per bit; immutable.
+
+    Equal to another holder or to a tuple of the same records (spans do not count, as for the
+    records). `records` makes the records once, for readers that want them one by one.
+    """
+
+    __slots__ = ("targets", "pins", "values", "spans", "_made")
+    _record: type
+
+    targets: tuple[str, ...]
+    pins: tuple[bool, ...]
+    values: str  # one character per bit
+    spans: tuple[SourceSpan | None, ...] | None  # None: no bit has a span
+
+    def _set(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
+             spans: Sequence[SourceSpan | None] | None) -> None:
+        values = values if isinstance(values, str) else "".join(values)
+        targets, pins = tuple(targets), tuple(pins)
+        if spans is not None:
+            spans = tuple(spans)
+        if len(pins) != len(targets) or len(values) != len(targets) or \
+                (spans is not None and len(spans) != len(targets)):
+            raise ValueError(f"{type(self).__name__}: columns of different lengths")
+        for name, value in (("targets", targets), ("pins", pins), ("values", values),
+                            ("spans", spans), ("_made", None)):
+            object.__setattr__(self, name, value)
+
+    def __setattr__(self, name: str, value: Any) -> None:
+        raise AttributeError(f"{type(self).__name__} is immutable")
+
+    def _columns(self) -> tuple[Iterable[Any], ...]:
+        raise NotImplementedError  # each holder lists its record's fields
+
+    def _key(self) -> tuple:
+        raise NotImplementedError
+
+    @property
+    def records(self) -> tuple[_Record, ...]:
+        made = self._made
+        if made is None:
+            made = _records(self._record, self._columns(), len(self.targets))
+            object.__setattr__(self, "_made", made)
+        return made
+
+    def span_of(self, index: int) -> SourceSpan | None:
+        return self.spans[index] if self.spans is not None else None
+
+    def __len__(self) -> int:
+        return len(self.targets)
+
+    def __iter__(self) -> Iterator[_Record]:
+        return iter(self.records)
+
+    @overload
+    def __getitem__(self, index: int) -> _Record: ...
+
+    @overload
+    def __getitem__(self, index: slice) -> tuple[_Record, ...]: ...
+
+    def __getitem__(self, index: int | slice) -> _Record | tuple[_Record, ...]:
+        if isinstance(index, slice) or self._made is not None:
+            return self.records[index]
+        return self._record(*(column[index] for column in self._columns_for_one()))
+
+    def _columns_for_one(self) -> tuple[Sequence[Any], ...]:
+        raise NotImplementedError
+
+    def __eq__(self, other: object) -> bool:
+        if type(other) is type(self):
+            return self._key() == other._key()  # type: ignore[attr-defined]
+        if isinstance(other, tuple):
+            return self.records == other
+        return NotImplemented
+
+    def __hash__(self) -> int:
+        return hash(self._key())
+
+    def __repr__(self) -> str:
+        return f"{type(self).__name__}({self.records!r})"
+
+
+class DriveColumns(_Columns[Drive]):
+    """A step's drive state as columns: target, is_pin, value and driver of each bit."""
+
+    __slots__ = ("drivers",)
+    _record = Drive
+    drivers: tuple[str | None, ...]
+
+    def __init__(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
+                 drivers: Sequence[str | None], spans: Sequence[SourceSpan | None] | None = None):
+        self._set(targets, pins, values, spans)
+        drivers = tuple(drivers)
+        if len(drivers) != len(self.targets):
+            raise ValueError("DriveColumns: columns of different lengths")
+        object.__setattr__(self, "drivers", drivers)
+
+    @classmethod
+    def of(cls, drives: Iterable[Drive]) -> "DriveColumns":
+        """The columns of these records (the holder itself when it is one)."""
+        if isinstance(drives, DriveColumns):
+            return drives
+        records = tuple(drives)
+        return cls(tuple(map(_TARGET, records)), tuple(map(_IS_PIN, records)),
+                   "".join(map(_VALUE, records)), tuple(map(_DRIVER, records)),
+                   _spans_of(records))
+
+    def _columns(self) -> tuple[Iterable[Any], ...]:
+        spans = self.spans if self.spans is not None else repeat(None)
+        return (self.targets, self.pins, self.values, self.drivers, spans)
+
+    def _columns_for_one(self) -> tuple[Sequence[Any], ...]:
+        spans = self.spans if self.spans is not None else (None,) * len(self.targets)
+        return (self.targets, self.pins, self.values, self.drivers, spans)
+
+    def _key(self) -> tuple:
+        return (self.targets, self.pins, self.values, self.drivers)
+
+    def __reduce__(self) -> tuple:
+        return (DriveColumns, (self.targets, self.pins, self.values, self.drivers, self.spans))
+
+
+class ExpectColumns(_Columns[Expect]):
+    """A step's expectations as columns: target, is_pin and value of each bit."""
+
+    __slots__ = ()
+    _record = Expect
+
+    def __init__(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
+                 spans: Sequence[SourceSpan | None] | None = None):
+        self._set(targets, pins, values, spans)
+
+    @classmethod
+    def of(cls, expects: Iterable[Expect]) -> "ExpectColumns":
+        """The columns of these records (the holder itself when it is one)."""
+        if isinstance(expects, ExpectColumns):
+            return expects
+        records = tuple(expects)
+        return cls(tuple(map(_TARGET, records)), tuple(map(_IS_PIN, records)),
+                   "".join(map(_VALUE, records)), _spans_of(records))
+
+    def _columns(self) -> tuple[Iterable[Any], ...]:
+        spans = self.spans if self.spans is not None else repeat(None)
+        return (self.targets, self.pins, self.values, spans)
+
+    def _columns_for_one(self) -> tuple[Sequence[Any], ...]:
+        spans = self.spans if self.spans is not None else (None,) * len(self.targets)
+        return (self.targets, self.pins, self.values, spans)
+
+    def _key(self) -> tuple:
+        return (self.targets, self.pins, self.values)
+
+    def __reduce__(self) -> tuple:
+        return (ExpectColumns, (self.targets, self.pins, self.values, self.spans))
+
+
+_TARGET, _IS_PIN, _VALUE = attrgetter("target"), attrgetter("is_pin"), attrgetter("value")
+_DRIVER, _SPAN = attrgetter("driver"), attrgetter("span")
+
+
+def _spans_of(records: Sequence[Drive | Expect]) -> tuple[SourceSpan | None, ...] | None:
+    spans = tuple(map(_SPAN, records))
+    return spans if any(span is not None for span in spans) else None
 
 
 @dataclass(frozen=True, slots=True)
@@ -111,13 +288,19 @@ class Step:
 
     name: str
     modes: tuple[tuple[str, str], ...]
-    drives: tuple[Drive, ...]
-    expects: tuple[Expect, ...]
+    drives: DriveColumns  # records given here are kept as their columns
+    expects: ExpectColumns
     writes: tuple[RegisterWrite, ...] = ()
     reads: tuple[RegisterRead, ...] = ()
     wait_clocks: int = 0
     overrides: tuple[Override, ...] = ()
     span: SourceSpan | None = field(default=None, compare=False)
+
+    def __post_init__(self) -> None:
+        if type(self.drives) is not DriveColumns:
+            object.__setattr__(self, "drives", DriveColumns.of(self.drives))
+        if type(self.expects) is not ExpectColumns:
+            object.__setattr__(self, "expects", ExpectColumns.of(self.expects))
 
     def mode_of(self, ref: str) -> str:
         return dict(self.modes)[ref]
@@ -229,7 +412,7 @@ def ir_to_data(node: Any, *, spans: bool = True) -> Any:
                 continue
             data[f.name] = ir_to_data(value, spans=spans)
         return data
-    if isinstance(node, tuple):
+    if isinstance(node, (tuple, _Columns)):
         return [ir_to_data(item, spans=spans) for item in node]
     return node
 

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 from contextlib import suppress
 from dataclasses import dataclass, field, replace
-from operator import attrgetter
 from pathlib import Path
 
 from .analysis.prehardware import CheckReport, check_ir, check_program, report_findings
@@ -31,7 +30,6 @@ __all__ = ["CheckedProgram", "CompileResult", "CompilerBug", "check_source_progr
            "validate_board_logic"]
 
 
-_VALUE_OF = attrgetter("value")
 
 
 class CompilerBug(ScanloomError):
@@ -56,8 +54,7 @@ class CompileResult:
 
 def _computed_expectations(program: Program, board: Board) -> dict[tuple[str, str, str], str]:
     """Values for `computed` expectations, from the fault-free virtual board."""
-    needs = any(COMPUTED in map(_VALUE_OF, step.expects)
-                for test in program.tests for step in test.steps)
+    needs = any(COMPUTED in step.expects.values for test in program.tests for step in test.steps)
     if not needs:
         return {}
     from .analysis.computed import compute_expectations

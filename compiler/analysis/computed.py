@@ -31,7 +31,7 @@ from ..backend.images import (
 from ..backend.records import ScanProgram
 from ..backend.schedule import schedule
 from ..diagnostics import Diagnostics
-from ..ir import COMPUTED, Program, Step
+from ..ir import COMPUTED, ExpectColumns, Program, Step
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, instruction_class, resolve_capture
 from ..sim.electrical import ElectricalBoard, build_electrical
@@ -60,9 +60,9 @@ def _probe(program: Program) -> Computed:
     image already in force, a flush) is kept: the states that change the pins are those of the
     program compiled with the real values.
     """
-    return {(test.name, step.name, expect.target): "0"
-            for test in program.tests for step in test.steps
-            for expect in step.expects if expect.value == COMPUTED}
+    return {(test.name, step.name, target): "0"
+            for test in program.tests for step in test.steps if COMPUTED in step.expects.values
+            for target, value in zip(step.expects.targets, step.expects.values) if value == COMPUTED}
 
 
 def _rails(value: int, known: int, full: int) -> tuple[int, int]:
@@ -122,10 +122,10 @@ def _step_state(board: Board, tables: Mapping[str, DeviceTables], step: Step
     """The instructions and boundary images the step puts in force (as the scheduler builds them)."""
     modes = {ref: _instruction(board, ref, name) for ref, name in step.modes}
     drives: dict[str, list[tuple[str, str]]] = {}
-    for drive in step.drives:
-        if drive.driver:
-            pin = PinRef.parse(drive.driver)
-            drives.setdefault(pin.ref, []).append((pin.port, drive.value))
+    for driver, value in zip(step.drives.drivers, step.drives.values):
+        if driver:
+            pin = PinRef.parse(driver)
+            drives.setdefault(pin.ref, []).append((pin.port, value))
     images: dict[str, frozenbitarray | None] = {}
     for entry in board.chain:
         kind = mode_kind(entry.device, modes.get(entry.ref, "BYPASS"))
@@ -179,16 +179,15 @@ def compute_expectations(program: Program, board: Board,
     if electrical is None:
         electrical = build_electrical(board, Diagnostics())
     computed: Computed = {}
-    if not any(expect.value == COMPUTED for test in program.tests for step in test.steps
-               for expect in step.expects):
+    if not any(COMPUTED in step.expects.values for test in program.tests for step in test.steps):
         return computed
     played = _PlayedBoard(program, board, electrical)
     tables = {entry.ref: device_tables(entry.ref, entry.device) for entry in board.chain}
     for test in program.tests:
         for step in test.steps:
-            wanted = [e for e in step.expects if e.value == COMPUTED]
-            if not wanted:
+            if COMPUTED not in step.expects.values:
                 continue
+            wanted = [e for e in step.expects if e.value == COMPUTED]
             state = played.state_of_step.get((test.name, step.name))
             if state is None:  # no cell captures any of them: nothing is compared
                 computed.update({(test.name, step.name, e.target): "X" for e in wanted})
@@ -208,10 +207,12 @@ def fill_computed(program: Program, board: Board, electrical: ElectricalBoard | 
     for test in program.tests:
         items = []
         for item in test.items:
-            if isinstance(item, Step):
-                expects = tuple(replace(e, value=computed[(test.name, item.name, e.target)])
-                                if e.value == COMPUTED else e for e in item.expects)
-                item = replace(item, expects=expects)
+            if isinstance(item, Step) and COMPUTED in item.expects.values:
+                expects = item.expects
+                values = "".join(computed[(test.name, item.name, target)] if value == COMPUTED
+                                 else value for target, value in zip(expects.targets, expects.values))
+                item = replace(item, expects=ExpectColumns(expects.targets, expects.pins, values,
+                                                           expects.spans))
             items.append(item)
         tests.append(replace(test, items=tuple(items)))
     return replace(program, tests=tuple(tests))

@@ -165,10 +165,14 @@ def check_bypass_expectations(program: Program, board: Board) -> list[Finding]:
     for test in program.tests:
         for step in test.steps:
             modes = dict(step.modes)
-            for expect in step.expects:
-                if not expect.is_pin or expect.value not in ("0", "1"):
+            expects = step.expects
+            if not any(expects.pins):
+                continue
+            for number, (target, is_pin, value) in enumerate(zip(expects.targets, expects.pins,
+                                                                  expects.values)):
+                if not is_pin or value not in ("0", "1"):
                     continue
-                ref = expect.target.partition(".")[0]
+                ref = target.partition(".")[0]
                 entry = board.devices.get(ref)
                 if entry is None:
                     continue
@@ -176,7 +180,7 @@ def check_bypass_expectations(program: Program, board: Board) -> list[Finding]:
                 if mode_kind(entry.device, instruction) == "bypass":
                     findings.append(Finding(
                         "bypass_expect",
-                        f"{expect.target} is expected {expect.value} in step {step.name}, but {ref} is in "
+                        f"{target} is expected {value} in step {step.name}, but {ref} is in "
                         f"{instruction}: its boundary register is not in the chain",
-                        expect.span or step.span, test.name, step.name))
+                        expects.span_of(number) or step.span, test.name, step.name))
     return findings

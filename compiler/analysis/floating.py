@@ -22,11 +22,18 @@ from ..safety_checks import Finding
 
 __all__ = ["check_floating_expectations"]
 
+_NOT_COMPARED = str.maketrans("", "", "01")  # what is left of expected values is not compared
+
+
+def _compares(values: str) -> bool:
+    """Does a step expect any 0 or 1 (X and computed ones aside)?"""
+    return len(values.translate(_NOT_COMPARED)) < len(values)
+
 _FUNCTIONAL = frozenset({"observe", "bypass", "device_id", "user"})
 
 
 def check_floating_expectations(program: Program, board: Board) -> list[Finding]:
-    if not any(e.value in ("0", "1") for t in program.tests for s in t.steps for e in s.expects):
+    if not any(_compares(step.expects.values) for t in program.tests for step in t.steps):
         return []
     refs = [entry.ref for entry in board.chain]
     index = {ref: i for i, ref in enumerate(refs)}
@@ -72,8 +79,8 @@ def check_floating_expectations(program: Program, board: Board) -> list[Finding]
     findings: list[Finding] = []
     for test in program.tests:
         for step in test.steps:
-            targets = [e for e in step.expects if e.value in ("0", "1")]
-            if not targets:
+            expects = step.expects
+            if not _compares(expects.values):
                 continue
             kinds = tuple(mode_kind(e.device, instr) for e, (_, instr) in zip(board.chain, step.modes))
             image = bitarray(images.build(kinds, step.drives).chain_image)
@@ -93,8 +100,11 @@ def check_floating_expectations(program: Program, board: Board) -> list[Finding]
             if not floating:
                 continue
             reported: set[tuple[str, ...]] = set()
-            for expect in targets:
-                net = board.net_of_pin.get(PinRef.parse(expect.target)) if expect.is_pin else expect.target
+            for number, (target, is_pin, value) in enumerate(zip(expects.targets, expects.pins,
+                                                                  expects.values)):
+                if value != "0" and value != "1":
+                    continue
+                net = board.net_of_pin.get(PinRef.parse(target)) if is_pin else target
                 node = node_of_net.get(net) if net else None
                 if node is None or node not in floating or node in reported:
                     continue
@@ -106,7 +116,7 @@ def check_floating_expectations(program: Program, board: Board) -> list[Finding]
                     or "its receivers read an undefined value"
                 findings.append(Finding(
                     "floating",
-                    f"net {net} floats in step {step.name} (nothing drives it), yet {expect.value} is "
-                    f"expected: {reads}", expect.span or step.span, test.name, step.name,
+                    f"net {net} floats in step {step.name} (nothing drives it), yet {value} is "
+                    f"expected: {reads}", expects.span_of(number) or step.span, test.name, step.name,
                     hint="drive the net, release the expectation (X), or expect what the receiver reads"))
     return findings

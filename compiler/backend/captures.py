@@ -101,7 +101,7 @@ class ExpectationTable:
     """
 
     modes: tuple[str, ...]
-    targets: list[str]
+    targets: Sequence[str]
     pin_position: list[int]
     pin_owner: list[int]  # index of the expectation
     pins_one_each: bool  # pin_owner is 0, 1, 2 ...: exactly one pin per expectation, in order
@@ -141,7 +141,7 @@ def _how_observed(resolver: CaptureResolver, idx: int, tables: DeviceTables, cel
     return code, driving, idle, unknown
 
 
-def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], targets: list[str],
+def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], targets: Sequence[str],
                             is_pin: Sequence[bool], receivers: Receivers,
                             tables: Sequence[DeviceTables], offsets: Sequence[int],
                             chain_starts: Sequence[int],

@@ -14,12 +14,11 @@ from __future__ import annotations
 import weakref
 from dataclasses import dataclass, field, replace
 from itertools import compress
-from operator import attrgetter
 from typing import Iterable, Mapping, Sequence
 
 from bitarray import bitarray, frozenbitarray
 
-from ..ir import Drive
+from ..ir import Drive, DriveColumns
 from ..models.board import Board
 from ..models.cells import STANDARD_CELLS, instruction_class
 from ..models.device import CONTROL_FUNCTIONS, DRIVER_FUNCTIONS, BoundaryCell, CellInfo, DeviceModel
@@ -321,7 +320,7 @@ class _DriveTable:
     """A step's list of driver pins placed in the chain image; reused while it stays the same."""
 
     kinds: tuple[str, ...]
-    drivers: list[str | None]
+    drivers: tuple[str | None, ...]
     data: list[int]  # chain position of each drive's data cell (0 where not regular)
     control: list[int]  # chain position of its control cell (0 where none)
     regular: frozenbitarray  # drives of EXTEST/CLAMP devices with an output cell
@@ -340,8 +339,6 @@ class StepImages:
     problems: tuple[str, ...]
 
 
-_DRIVER_OF = attrgetter("driver")
-_VALUE_OF = attrgetter("value")
 _DRIVE_VALUES = frozenset({"0", "1", "Z"})
 _DROP_DRIVE_VALUES = str.maketrans("", "", "01Z")  # what is left is not a drive value
 _ONES = str.maketrans("01Z", "010")
@@ -395,7 +392,7 @@ class ChainImages:
         # steps; holding the drives keeps their id from being reused while the entry lives.
         self._built: dict[tuple[tuple[str, ...], int], tuple[Sequence[Drive], StepImages]] = {}
 
-    def _table(self, kinds: tuple[str, ...], drivers: list[str | None]) -> _DriveTable:
+    def _table(self, kinds: tuple[str, ...], drivers: tuple[str | None, ...]) -> _DriveTable:
         direct = [kind == DRIVE or kind == CLAMP for kind in kinds]
         data: list[int] = []
         control: list[int] = []
@@ -432,20 +429,22 @@ class ChainImages:
         self._built[key] = (drives, built)
         return built
 
-    def _build(self, kinds: tuple[str, ...], drives: Sequence[Drive]) -> StepImages:
+    def _build(self, kinds: tuple[str, ...], given: Sequence[Drive]) -> StepImages:
         problems: list[str] = []
-        drivers = list(map(_DRIVER_OF, drives))
+        drives = DriveColumns.of(given)  # steps of the IR hold them so already
+        drivers = drives.drivers
         table = self._last
-        if table is None or table.kinds != kinds or table.drivers != drivers:
+        if table is None or table.kinds != kinds or \
+                (table.drivers is not drivers and table.drivers != drivers):
             table = self._table(kinds, drivers)
             self._last = table
-        text = "".join(map(_VALUE_OF, drives))
-        if len(text) != len(drives) or text.translate(_DROP_DRIVE_VALUES):
-            for drive in drives:
-                if drive.value not in _DRIVE_VALUES:
-                    problems.append(f"drive on {drive.target}: value {drive.value!r} is not 0, 1 "
+        text = drives.values
+        if text.translate(_DROP_DRIVE_VALUES):
+            for target, value in zip(drives.targets, text):
+                if value not in _DRIVE_VALUES:
+                    problems.append(f"drive on {target}: value {value!r} is not 0, 1 "
                                     "or Z; released instead")
-            text = "".join(v if v in _DRIVE_VALUES else "Z" for v in map(_VALUE_OF, drives))
+            text = "".join(v if v in _DRIVE_VALUES else "Z" for v in text)
         image = bitarray(self.disabled)
         if drives:
             ones = bitarray(text.translate(_ONES)) & table.regular

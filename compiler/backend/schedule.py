@@ -15,7 +15,6 @@ thing and says so in ScanProgram.notes.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from operator import attrgetter
 from typing import Iterator, Mapping, Sequence
 
 from bitarray import bitarray, frozenbitarray
@@ -37,9 +36,6 @@ from .records import DR_SCAN, IDLE, IR_SCAN, RESET, CheckRange, ScanProgram, Seg
 __all__ = ["schedule"]
 
 Computed = Mapping[tuple[str, str, str], str]
-_TARGET_OF = attrgetter("target")
-_VALUE_OF = attrgetter("value")
-_IS_PIN_OF = attrgetter("is_pin")
 _EXPECTED_VALUES = frozenset({"0", "1", "X"})
 _DROP_EXPECTED_VALUES = str.maketrans("", "", "01X")  # what is left needs a closer look
 
@@ -477,15 +473,16 @@ class _Scheduler:
         mask = bitarray(tdo)
         expects = step.expects
         if expects:
-            targets = list(map(_TARGET_OF, expects))
+            targets = expects.targets
             table = self._expectation_table
-            if table is None or table.modes != modes or table.targets != targets:
+            if table is None or table.modes != modes or \
+                    (table.targets is not targets and table.targets != targets):
                 table = build_expectation_table(
-                    modes, kinds, targets, list(map(_IS_PIN_OF, expects)), self._receivers,
+                    modes, kinds, targets, expects.pins, self._receivers,
                     self.tables, layout.offsets, self.chain_images.starts, self.resolver)
                 self._expectation_table = table
-            values = "".join(map(_VALUE_OF, expects))
-            if len(values) != len(expects) or values.translate(_DROP_EXPECTED_VALUES):
+            values = expects.values
+            if values.translate(_DROP_EXPECTED_VALUES):
                 values = self._checked_values(test, step, targets)
             for owner in table.unobservable:
                 if values[owner] != "X":
@@ -505,11 +502,10 @@ class _Scheduler:
         return _Response(test, step.name, layout, frozenbitarray(tdo), frozenbitarray(mask),
                          compared)
 
-    def _checked_values(self, test: str, step: Step, targets: list[str]) -> str:
+    def _checked_values(self, test: str, step: Step, targets: Sequence[str]) -> str:
         """Expected values as 0/1/X: computed ones looked up, anything else not compared."""
         out: list[str] = []
-        for target, expect in zip(targets, step.expects):
-            value = expect.value
+        for target, value in zip(targets, step.expects.values):
             if value == COMPUTED:
                 found = self.computed.get((test, step.name, target))
                 if found is None:

@@ -6,27 +6,27 @@ scan pin that drives it in that step's modes — the user's pin, else the first 
 in chain order — or None when, in these modes, no device can (a drive stated in this very
 step was already checked; one that persists from an earlier step simply waits for a driver).
 
-Drives and expectations written in a vector table carry no span of their own (the step's span
-is the row); being equal, they are shared between rows, which keeps large tables small.
-
 A step of a large board assigns tens of thousands of bits, so the plan keeps them per signal
-(a column of bits and a string of values) and the work per bit is done by builtins: while a
-step assigns every bit in force — the rows of a vector table, or steps that drive every group
-— the state is simply that step, signal by signal, put in target order by one prepared gather;
-otherwise its bits are merged into a dictionary of the state in force.
+(a column of bits and a string of values) and so does the IR (`DriveColumns`,
+`ExpectColumns`). While a step assigns every bit in force — the rows of a vector table, or
+steps that drive every group — the state is simply that step: the target, pin and driver
+columns of its set of signals are put in target order once, and the step adds its values,
+put in the same order by one prepared gather. Otherwise its bits are merged into a
+dictionary of the state in force.
 """
 
 from __future__ import annotations
 
-from itertools import chain
-from operator import getitem, itemgetter
-from typing import Callable, Sequence
+from dataclasses import dataclass
+from itertools import chain, repeat
+from operator import itemgetter
+from typing import Sequence
 
 from ..collector import collector_paused
 from ..diagnostics import SourceSpan
 from ..ir import (
-    ChainScan, Drive, Expect, Program, RegisterRead, RegisterWrite, Step, TapReset, Test, TestItem, Wait,
-    drives_of, expects_of,
+    ChainScan, Drive, DriveColumns, ExpectColumns, Program, RegisterRead, RegisterWrite, Step, TapReset,
+    Test, TestItem, Wait,
 )
 from ..models.board import Board
 from .checks import (
@@ -52,20 +52,18 @@ def lower_program(plan: ProgramPlan, board: Board, source: str, board_path: str,
 
 
 class _Records:
-    """The IR records of assigned bits, made once where they can be shared.
+    """The IR columns of assigned bits, made once where steps share them.
 
-    Span-less records (table cells) are shared: per column, modes and value character, a
-    tuple with one record per bit, so a cell's records are picked by builtins. Records with a
-    span belong to their statement and are made for it.
+    For each set of columns a step assigns, the gather that puts their bits in target order
+    and the target and pin columns in that order are made once; per set of modes, the driver
+    column too. A step then adds only its values (and spans, if written in statements).
     """
 
     def __init__(self, scope: Scope):
         self.scope = scope
-        self.shared: dict[tuple, Drive | Expect] = {}
         self.drivers: dict[tuple[Modes, int], tuple[str | None, ...]] = {}
-        self.drive_choices: dict[tuple[Modes, int], _Choices] = {}
-        self.expect_choices: dict[int, _Choices] = {}
-        self.gathers: dict[tuple[int, ...], _Gather] = {}
+        self.layouts: dict[tuple[int, ...], _Layout] = {}
+        self.layout_drivers: dict[tuple[Modes, tuple[int, ...]], tuple[str | None, ...]] = {}
         self.mode_names: dict[Modes, dict[str, str]] = {}
 
     def column_drivers(self, column: ColumnEntries, modes: Modes) -> tuple[str | None, ...]:
@@ -83,59 +81,35 @@ class _Records:
             by_name = self.mode_names[modes] = dict(modes)
         return self.scope.choose_driver(bit, modes, by_name)
 
-    def drives(self, assigned: Assigned, modes: Modes) -> tuple[Drive, ...]:
-        column = assigned.column
-        if assigned.span is not None:
-            return drives_of(column.targets, column.pins, assigned.values,
-                             self.column_drivers(column, modes), assigned.span)
-        key = (modes, id(column))
-        choices = self.drive_choices.get(key)
-        if choices is None:
-            drivers = self.column_drivers(column, modes)
-            choices = self.drive_choices[key] = _Choices(column, lambda char: tuple(
-                self.shared_drive(target, pin, char, driver)
-                for target, pin, driver in zip(column.targets, column.pins, drivers)))
-        return choices.pick(assigned.values)
-
-    def expects(self, assigned: Assigned) -> tuple[Expect, ...]:
-        column = assigned.column
-        if assigned.span is not None:
-            return expects_of(column.targets, column.pins, assigned.values, assigned.span)
-        choices = self.expect_choices.get(id(column))
-        if choices is None:
-            choices = self.expect_choices[id(column)] = _Choices(column, lambda char: tuple(
-                self.shared_expect(target, pin, char) for target, pin in zip(column.targets, column.pins)))
-        return choices.pick(assigned.values)
-
     def drive(self, bit: BitRef, value: str, span: SourceSpan | None, modes: Modes) -> Drive:
         """One bit's drive (the general path, bit by bit)."""
-        driver = self.driver(bit, modes)
-        if span is not None:
-            return Drive(bit.target, bit.is_pin, value, driver, span)
-        return self.shared_drive(bit.target, bit.is_pin, value, driver)
+        return Drive(bit.target, bit.is_pin, value, self.driver(bit, modes), span)
 
-    def shared_drive(self, target: str, is_pin: bool, value: str, driver: str | None) -> Drive:
-        key = ("drive", target, is_pin, value, driver)
-        found = self.shared.get(key)
-        if found is None:
-            found = self.shared.setdefault(key, Drive(target, is_pin, value, driver))
-        return found  # type: ignore[return-value]
-
-    def shared_expect(self, target: str, is_pin: bool, value: str) -> Expect:
-        key = ("expect", target, is_pin, value)
-        found = self.shared.get(key)
-        if found is None:
-            found = self.shared.setdefault(key, Expect(target, is_pin, value))
-        return found  # type: ignore[return-value]
-
-    def target_order(self, assigned: Sequence[Assigned]) -> _Gather:
-        """The gather that sorts the concatenated bits of these columns by target."""
+    def layout(self, assigned: Sequence[Assigned]) -> _Layout:
+        """Target order and the target and pin columns of these columns' bits."""
         key = tuple(id(item.column) for item in assigned)
-        found = self.gathers.get(key)
+        found = self.layouts.get(key)
         if found is None:
             targets = [target for item in assigned for target in item.column.targets]
-            found = self.gathers[key] = _Gather(sorted(range(len(targets)), key=targets.__getitem__))
+            gather = _Gather(sorted(range(len(targets)), key=targets.__getitem__))
+            pins = tuple(chain.from_iterable(item.column.pins for item in assigned))
+            found = self.layouts[key] = _Layout(key, gather, gather(targets), gather(pins))
         return found
+
+    def drive_state(self, assigned: Sequence[Assigned], modes: Modes) -> DriveColumns:
+        """A step that assigns every bit in force, as the drive state in target order."""
+        layout = self.layout(assigned)
+        drivers = self.layout_drivers.get((modes, layout.key))
+        if drivers is None:
+            drivers = self.layout_drivers[(modes, layout.key)] = layout.gather(tuple(chain.from_iterable(
+                self.column_drivers(item.column, modes) for item in assigned)))
+        return DriveColumns(layout.targets, layout.pins, layout.values(assigned), drivers,
+                            layout.spans(assigned))
+
+    def expectations(self, assigned: Sequence[Assigned]) -> ExpectColumns:
+        layout = self.layout(assigned)
+        return ExpectColumns(layout.targets, layout.pins, layout.values(assigned),
+                             layout.spans(assigned))
 
 
 class _TestLowering:
@@ -144,7 +118,7 @@ class _TestLowering:
     def __init__(self, records: _Records):
         self.records = records
         self.modes: Modes | None = None  # the modes the drives in force chose drivers under
-        self.state: tuple[Drive, ...] = ()  # the drives in force, in target order
+        self.state = _NO_DRIVES  # the drives in force, in target order
         # Either a whole step holds the state (`whole`: its assignments, all keys covered) ...
         self.whole: tuple[Assigned, ...] | None = None
         # ... or the dictionaries do: key (net, else pin) -> entry and Drive, in target order.
@@ -172,12 +146,8 @@ class _TestLowering:
         return Step(item.name, item.modes, self.state, expects, writes, reads, item.wait_clocks,
                     item.overrides, item.span)
 
-    def expectations(self, assigned: tuple[Assigned, ...]) -> tuple[Expect, ...]:
-        if not assigned:
-            return ()
-        records = self.records
-        order = records.target_order(assigned)
-        return order(tuple(chain.from_iterable(map(records.expects, assigned))))
+    def expectations(self, assigned: tuple[Assigned, ...]) -> ExpectColumns:
+        return self.records.expectations(assigned) if assigned else _NO_EXPECTS
 
     # ---- drives -----------------------------------------------------------------------------
     def apply(self, item: StepPlan) -> None:
@@ -189,9 +159,7 @@ class _TestLowering:
                 return  # the same assignments again: nothing changed
             self.whole, self.modes = assigned, item.modes
             self.entries, self.drives = {}, {}
-            records = self.records
-            drives = tuple(chain.from_iterable(records.drives(a, item.modes) for a in assigned))
-            self.state = records.target_order(assigned)(drives)
+            self.state = self.records.drive_state(assigned, item.modes)
             return
         self.to_dictionaries()
         if item.modes is not self.modes:
@@ -218,7 +186,7 @@ class _TestLowering:
             return
         if resort:
             self.drives = dict(sorted(drives.items(), key=_drive_target))
-        self.state = tuple(self.drives.values())
+        self.state = DriveColumns.of(self.drives.values())
 
     def covers_all(self, item: StepPlan) -> bool:
         """Does this step assign every bit in force (so it alone is the new state)?"""
@@ -241,7 +209,7 @@ class _TestLowering:
         entries = tuple(chain.from_iterable(a.entries() for a in whole))
         self.entries = {entry[0].key: entry for entry in entries}
         self.drives = {drive_key: drive for drive_key, drive in zip(
-            self.records.target_order(whole)(tuple(e[0].key for e in entries)), self.state)}
+            self.records.layout(whole).gather(tuple(e[0].key for e in entries)), self.state)}
 
     def rechoose_all(self) -> None:
         """New modes: every drive in force chooses its driver again."""
@@ -249,7 +217,7 @@ class _TestLowering:
         made = ((key, self.records.drive(entry[0], entry[1], entry[2], self.modes))
                 for key, entry in self.entries.items())
         self.drives = dict(sorted(made, key=_drive_target))
-        self.state = tuple(self.drives.values())
+        self.state = DriveColumns.of(self.drives.values())
 
 
 def _drive_target(pair: tuple[str, Drive]) -> str:
@@ -269,18 +237,24 @@ class _Gather:
         return (items[0],) if self.single else ()
 
 
-class _Choices(dict):
-    """One column's shared IR records per value character, made on first use; a cell's
-    records are then picked bit by bit by builtins."""
+@dataclass(frozen=True, slots=True, eq=False)
+class _Layout:
+    """The bits of a set of columns in target order: the gather and the columns it gives."""
 
-    def __init__(self, column: ColumnEntries, make: Callable[[str], tuple]):
-        super().__init__()
-        self.positions = column.positions
-        self.make = make
+    key: tuple[int, ...]
+    gather: _Gather
+    targets: tuple[str, ...]
+    pins: tuple[bool, ...]
 
-    def __missing__(self, char: str) -> tuple:
-        made = self[char] = self.make(char)
-        return made
+    def values(self, assigned: Sequence[Assigned]) -> str:
+        return "".join(self.gather("".join([item.values for item in assigned])))
 
-    def pick(self, values: str) -> tuple:
-        return tuple(map(getitem, map(self.__getitem__, values), self.positions))
+    def spans(self, assigned: Sequence[Assigned]) -> tuple[SourceSpan | None, ...] | None:
+        if all(item.span is None for item in assigned):
+            return None
+        return self.gather(tuple(chain.from_iterable(
+            repeat(item.span, item.column.width) for item in assigned)))
+
+
+_NO_DRIVES = DriveColumns((), (), "", ())
+_NO_EXPECTS = ExpectColumns((), (), "")
