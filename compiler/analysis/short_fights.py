@@ -41,29 +41,6 @@ class FightWindow:
     count: int  # how many pairs oppose
 
 
-@dataclass(frozen=True, slots=True)
-class _Output:
-    pin: PinRef
-    data: int
-    control: int | None
-    disable_value: int | None
-
-
-def _adjacent_outputs(board: Board) -> list[tuple[_Output, _Output]]:
-    """Pairs of scan outputs on neighbouring package pins of one device, on different nets,
-    in chain order (each device's pairs together)."""
-    pairs = []
-    net_of_pin = board.net_of_pin
-    for entry in board.chain:
-        for port_a, port_b, a, b in _driver_pairs(entry.device):
-            pin_a, pin_b = PinRef(entry.ref, port_a), PinRef(entry.ref, port_b)
-            net_a, net_b = net_of_pin.get(pin_a), net_of_pin.get(pin_b)
-            if net_a is None or net_b is None or net_a == net_b:
-                continue
-            pairs.append((_Output(pin_a, *a), _Output(pin_b, *b)))
-    return pairs
-
-
 _Cells = tuple[int, "int | None", "int | None"]  # data cell, control cell, disable value
 
 
@@ -81,39 +58,57 @@ def _driver_pairs(device: DeviceModel) -> tuple[tuple[str, str, _Cells, _Cells],
 
 
 class _PairTable:
-    """The pairs' cells as positions in a chain-wide image, so one window is a few bitarray
-    operations: an interconnect test of a large board has a hundred thousand neighbour pairs."""
+    """Pairs of scan outputs on neighbouring package pins of one device, on different nets, in
+    chain order (each device's pairs together), as positions in a chain-wide image: one window
+    is then a few bitarray operations, for the hundred thousand neighbour pairs of a large
+    board's interconnect test."""
 
-    def __init__(self, board: Board, pairs: list[tuple[_Output, _Output]]):
+    def __init__(self, board: Board):
         self.refs = [entry.ref for entry in board.chain]
         self.lengths = [entry.device.boundary_length for entry in board.chain]
-        starts, at = {}, 0
-        for ref, length in zip(self.refs, self.lengths):
-            starts[ref] = at
-            at += length
-        self.sentinel = at  # a constant 1 appended to the image: the "control" of a 2-state output
-        self.pairs = pairs
-
-        def columns(side: int) -> tuple[list[int], list[int], bitarray]:
-            data, control, disable = [], [], []
-            for pair in pairs:
-                out = pair[side]
-                base = starts[out.pin.ref]
-                data.append(base + out.data)
-                if out.control is None or out.disable_value is None:
-                    control.append(self.sentinel)
-                    disable.append(0)
-                else:
-                    control.append(base + out.control)
-                    disable.append(out.disable_value)
-            return data, control, bitarray(disable)
-
-        self.a = columns(0)
-        self.b = columns(1)
+        self.sentinel = sum(self.lengths)  # a constant 1 appended to the image: the "control"
+        # of a two-state output
+        net_of_port: dict[str, dict[str, str]] = {ref: {} for ref in self.refs}
+        for net in board.nets.values():
+            for pin in net.pins:
+                ports = net_of_port.get(pin.ref)
+                if ports is not None:
+                    ports[pin.port] = net.name  # as Board.net_of_pin
+        self.ports: list[tuple[str, str]] = []
         self.ranges: dict[str, tuple[int, int]] = {}
-        for k, (a, _) in enumerate(pairs):
-            lo, _ = self.ranges.get(a.pin.ref, (k, k))
-            self.ranges[a.pin.ref] = (lo, k + 1)
+        sides: tuple[list[_Cells], list[_Cells]] = ([], [])
+        bases: list[int] = []
+        base = 0
+        for entry, length in zip(board.chain, self.lengths):
+            nets = net_of_port[entry.ref]
+            kept = [pair for pair in _driver_pairs(entry.device)
+                    if (net_a := nets.get(pair[0])) is not None
+                    and (net_b := nets.get(pair[1])) is not None and net_a != net_b]
+            if kept:
+                self.ranges[entry.ref] = (len(self.ports), len(self.ports) + len(kept))
+                self.ports += [(pair[0], pair[1]) for pair in kept]
+                sides[0].extend(pair[2] for pair in kept)
+                sides[1].extend(pair[3] for pair in kept)
+                bases += [base] * len(kept)
+            base += length
+        self.a = self._columns(sides[0], bases)
+        self.b = self._columns(sides[1], bases)
+
+    def __len__(self) -> int:
+        return len(self.ports)
+
+    def _columns(self, cells: list[_Cells], bases: list[int]) -> tuple[list[int], list[int], bitarray]:
+        """Chain positions of each pair side's data and control cells, and the disable values."""
+        data = [base + cell[0] for base, cell in zip(bases, cells)]
+        control = [self.sentinel if cell[1] is None or cell[2] is None else base + cell[1]
+                   for base, cell in zip(bases, cells)]
+        disable = bitarray([0 if cell[1] is None or cell[2] is None else cell[2] for cell in cells])
+        return data, control, disable
+
+    def pair(self, k: int) -> tuple[PinRef, PinRef]:
+        ref = next(ref for ref, (lo, hi) in self.ranges.items() if lo <= k < hi)
+        port_a, port_b = self.ports[k]
+        return PinRef(ref, port_a), PinRef(ref, port_b)
 
     def opposed(self, images: dict[str, bitarray], driving: set[str]) -> bitarray:
         """1 for each pair whose two outputs are enabled and drive different values."""
@@ -133,9 +128,6 @@ class _PairTable:
 def fight_windows(scan: ScanProgram, cycles: CycleStream, board: Board, tck_hz: float,
                   limit_s: float) -> list[FightWindow]:
     """Every interval between updates, longer than `limit_s`, in which adjacent pins oppose."""
-    pairs = _adjacent_outputs(board)
-    if not pairs:
-        return []
     table: _PairTable | None = None
     scans = [i for i, r in enumerate(scan.records) if r.kind in (IR_SCAN, DR_SCAN)]
     update_cycle: dict[int, int] = {}
@@ -159,14 +151,15 @@ def fight_windows(scan: ScanProgram, cycles: CycleStream, board: Board, tck_hz: 
         seconds = (end - update_cycle[index]) / tck_hz
         if seconds <= limit_s:
             continue
-        table = table or _PairTable(board, pairs)
+        table = table or _PairTable(board)
+        if not len(table):
+            return []
         driving = {ref for ref, name in instruction.items() if name.upper() in _DRIVING}
         opposed = table.opposed(images, driving)
         count = opposed.count()
         if count:
-            k = opposed.index(1)
             windows.append(FightWindow(index, record.test, record.step, seconds,
-                                       (pairs[k][0].pin, pairs[k][1].pin), count))
+                                       table.pair(opposed.index(1)), count))
     return windows
 
 

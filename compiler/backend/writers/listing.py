@@ -67,10 +67,11 @@ class _ChainLabels:
         key = (ref, register, offset, length)
         lines = self._lines.get(key)
         if lines is None:
-            lines = []
-            for bit, name in enumerate(self.labels(ref, register, length)[:length]):
-                head = f"      scan bit {offset + bit}: expect "
-                lines += (f"{head}0  {name}", f"{head}1  {name}")
+            names = self.labels(ref, register, length)[:length]
+            places = range(offset, offset + len(names))
+            lines = [""] * (2 * len(names))
+            lines[0::2] = [f"      scan bit {place}: expect 0  {name}" for place, name in zip(places, names)]
+            lines[1::2] = [f"      scan bit {place}: expect 1  {name}" for place, name in zip(places, names)]
             self._lines[key] = lines
         return lines
 
@@ -84,19 +85,16 @@ class _ChainLabels:
     def _build(self, ref: str, register: str, length: int) -> list[str]:
         if register != "BOUNDARY" or ref not in self.devices:
             return [f"{ref} {register} bit {bit}" for bit in range(length)]
-        by_number: dict[int, list[CellMeaning]] = {}
+        roles: list[str] = [""] * length
         for cell in self.devices[ref].cells:
-            by_number.setdefault(cell.number, []).append(cell)
-        labels = []
-        for bit in range(length):
-            roles = "; ".join(
-                f"{cell.cell_type} {cell.function}"
-                + (f" port {cell.port}" if cell.port else " internal")
-                + (f" net {cell.net}" if cell.net else "")
-                for cell in by_number.get(bit, [])
-            )
-            labels.append(f"{ref} BOUNDARY cell {bit}" + (f" ({roles})" if roles else ""))
-        return labels
+            if 0 <= cell.number < length:
+                role = f"{cell.cell_type} {cell.function}" \
+                    + (f" port {cell.port}" if cell.port else " internal") \
+                    + (f" net {cell.net}" if cell.net else "")
+                known = roles[cell.number]
+                roles[cell.number] = f"{known}; {role}" if known else role
+        head = f"{ref} BOUNDARY cell "
+        return [f"{head}{bit} ({role})" if role else f"{head}{bit}" for bit, role in enumerate(roles)]
 
 
 def _where_it_ends(record: ShiftRecord, end: int, cycles: CycleStream) -> str:
@@ -178,7 +176,7 @@ def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
         selector[0::2] = window & ~expected
         selector[1::2] = window & expected
         prepared = labels.compared_lines(segment.device, segment.register, start, segment.length)
-        lines.extend(compress(prepared[:2 * (stop - start)], selector))
+        lines.extend(compress(prepared, selector))  # (compress stops at the selector's end)
     # A raw chain scan longer than the chain: the bits past it are TDI bits passing through.
     chain_length = max((s.offset + s.length for s in record.segments), default=0)
     for bit in mask.search(1, chain_length):
