@@ -8,14 +8,14 @@ two devices or more, and guarded nets; boards have tens of thousands of nets.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from typing import NamedTuple
 
 from bitarray import frozenbitarray
 
 from ..backend.images import CLAMP, DRIVE, chain_images, device_tables, mode_kind
 from ..ir import Program, Step
 from ..models.board import Board, PinRef
-from ..models.connectivity import driver_cells, series_groups
+from ..models.connectivity import first_driver_cells, series_groups
 from ..safety_checks import Finding
 
 __all__ = ["check_drive_hazards", "check_bypass_expectations", "StepOutputs"]
@@ -23,8 +23,9 @@ __all__ = ["check_drive_hazards", "check_bypass_expectations", "StepOutputs"]
 _FUNCTIONAL_KINDS = frozenset({"observe", "bypass", "device_id", "user"})  # system logic drives pins
 
 
-@dataclass(frozen=True, slots=True)
-class _DriverPin:
+class _DriverPin(NamedTuple):
+    """A scan output on a net (a named tuple: one per driving pin of the board)."""
+
     pin: PinRef
     device: int
     data: int
@@ -46,15 +47,18 @@ class StepOutputs:
         for net in board.nets:
             self.node_of[net] = groups.get(net, (net,))
         self.drivers_on: dict[tuple[str, ...], tuple[_DriverPin, ...]] = {}
+        first = [first_driver_cells(entry.device) for entry in board.chain]
+        index, nets = self.index, board.nets
         for node in set(self.node_of.values()):
             found = []
             for net in node:
-                for pin in board.nets[net].pins:
-                    idx = self.index.get(pin.ref)
-                    if idx is None:
-                        continue
-                    for cell in driver_cells(board.chain[idx].device, pin.port)[:1]:
-                        found.append(_DriverPin(pin, idx, cell.number, cell.control_cell, cell.disable_value))
+                for pin in nets[net].pins:
+                    idx = index.get(pin.ref)
+                    if idx is not None:
+                        cell = first[idx].get(pin.port)
+                        if cell is not None:
+                            found.append(_DriverPin(pin, idx, cell.number, cell.control_cell,
+                                                    cell.disable_value))
             self.drivers_on[node] = tuple(found)
 
     def kinds(self, step: Step) -> tuple[str, ...]:
@@ -94,8 +98,8 @@ def check_drive_hazards(program: Program, board: Board) -> list[Finding]:
                 if net is not None and value in "01":
                     held.setdefault(net, value)
     never = set(board.never_drive)
-    contested = [node for node, drivers in sorted(outputs.drivers_on.items())
-                 if len({d.device for d in drivers}) >= 2]
+    contested = sorted(node for node, drivers in outputs.drivers_on.items()
+                       if len(drivers) >= 2 and len({d.device for d in drivers}) >= 2)
     guarded = sorted({outputs.node_of[n] for n in (set(held) | never)})
     findings: list[Finding] = []
     seen: set[tuple[str, str, str]] = set()

@@ -17,7 +17,7 @@ from bitarray import bitarray
 from ..backend.images import CLAMP, DRIVE, chain_images, mode_kind
 from ..ir import Program
 from ..models.board import Board, PinRef
-from ..models.connectivity import driver_cells, series_groups
+from ..models.connectivity import first_driver_cells, series_groups
 from ..safety_checks import Finding
 
 __all__ = ["check_floating_expectations"]
@@ -47,6 +47,8 @@ def check_floating_expectations(program: Program, board: Board) -> list[Finding]
     node_of_net: dict[str, tuple[str, ...]] = {}
     always_driven: set[tuple[str, ...]] = set()
     per_device: list[list[tuple[tuple[str, ...], int, int]]] = [[] for _ in refs]
+    first = [first_driver_cells(entry.device) for entry in board.chain]
+    starts = images.starts
     for net in board.nets.values():
         node = groups.get(net.name, (net.name,))
         node_of_net[net.name] = node
@@ -58,11 +60,13 @@ def check_floating_expectations(program: Program, board: Board) -> list[Finding]
             idx = index.get(pin.ref)
             if idx is None:
                 continue
-            for cell in driver_cells(board.chain[idx].device, pin.port)[:1]:
-                if cell.control_cell is not None and cell.disable_value is not None:
-                    per_device[idx].append((node, images.starts[idx] + cell.control_cell, cell.disable_value))
-                else:
-                    per_device[idx].append((node, -1, 0))
+            cell = first[idx].get(pin.port)
+            if cell is None:
+                continue
+            if cell.control_cell is not None and cell.disable_value is not None:
+                per_device[idx].append((node, starts[idx] + cell.control_cell, cell.disable_value))
+            else:
+                per_device[idx].append((node, -1, 0))
     always_on = len(images.disabled)
     owners = [node for outs in per_device for node, _, _ in outs]
     controls = [c if c >= 0 else always_on for outs in per_device for _, c, _ in outs]

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from ..models.board import Board, ChainDevice
 from ..models.device import DeviceModel
+from ..models.model_memo import per_model
 from .records import CellMeaning, ChainMap, DeviceMap
 
 __all__ = ["build_chain_map", "register_lengths"]
@@ -32,13 +33,20 @@ def register_lengths(device: DeviceModel) -> dict[str, int]:
     return lengths
 
 
-def _device_map(entry: ChainDevice, net_of_port: dict[str, str]) -> DeviceMap:
+@per_model
+def _cell_columns(device: DeviceModel) -> tuple[tuple[int, ...], tuple[str, ...], tuple[str, ...],
+                                                 tuple[str | None, ...]]:
+    """Number, cell type, function and port of each of the model's cells (None: internal)."""
+    cells = device.cells
+    return (tuple(cell.number for cell in cells), tuple(cell.cell_type for cell in cells),
+            tuple(cell.function for cell in cells), tuple(cell.port for cell in cells))
+
+
+def _device_map(entry: ChainDevice, net_of_port: dict[str | None, str]) -> DeviceMap:
     device = entry.device
-    cells = tuple(
-        CellMeaning(cell.number, cell.cell_type, cell.function, cell.port,
-                    net_of_port.get(cell.port) if cell.port else None)
-        for cell in device.cells
-    )
+    numbers, types, functions, ports = _cell_columns(device)
+    # An internal cell (port None) looks up None, which no port is: it has no net.
+    cells = tuple(map(CellMeaning, numbers, types, functions, ports, map(net_of_port.get, ports)))
     return DeviceMap(
         ref=entry.ref,
         entity=device.entity,
@@ -56,7 +64,7 @@ def _device_map(entry: ChainDevice, net_of_port: dict[str, str]) -> DeviceMap:
 
 def build_chain_map(board: Board) -> ChainMap:
     """The chain in TDI -> TDO order, each boundary cell with its port and board net."""
-    net_of_port: dict[str, dict[str, str]] = {entry.ref: {} for entry in board.chain}
+    net_of_port: dict[str, dict[str | None, str]] = {entry.ref: {} for entry in board.chain}
     for net in board.nets.values():
         for pin in net.pins:
             ports = net_of_port.get(pin.ref)

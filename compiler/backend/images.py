@@ -14,7 +14,7 @@ from __future__ import annotations
 import weakref
 from dataclasses import dataclass, field, replace
 from itertools import compress
-from typing import Iterable, Mapping, Sequence
+from typing import Iterable, Mapping, NamedTuple, Sequence
 
 from bitarray import bitarray, frozenbitarray
 
@@ -303,9 +303,9 @@ def build_image(tables: DeviceTables, kind: str, drives: Iterable[tuple[str, str
     return ImageResult(frozenbitarray(image), tuple(problems))
 
 
-@dataclass(frozen=True, slots=True)
-class ChainDriver:
-    """A driver port placed in the chain-wide image (positions, not cell numbers)."""
+class ChainDriver(NamedTuple):
+    """A driver port placed in the chain-wide image (positions, not cell numbers); a named
+    tuple, as a board has one per driving pin."""
 
     device: int
     port: str

@@ -16,7 +16,8 @@ from .cells import PIN, resolve_capture
 from .device import DRIVER_FUNCTIONS, RECEIVER_FUNCTIONS, BoundaryCell, DeviceModel
 from .model_memo import per_model
 
-__all__ = ["NetRoles", "net_roles", "series_groups", "receiver_cells", "driver_cells", "NET_KINDS"]
+__all__ = ["NetRoles", "net_roles", "series_groups", "receiver_cells", "driver_cells", "first_driver_cells",
+           "NET_KINDS"]
 
 NET_KINDS = ("scan-to-scan", "cluster", "drive-only", "observe-only", "untestable")
 
@@ -33,6 +34,16 @@ class NetRoles:
 
 def driver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
     return device.driver_cells_by_port.get(port, ())
+
+
+def first_driver_cells(device: DeviceModel) -> dict[str, BoundaryCell]:
+    """Each driving port's first output cell: the one the checks take for the pin's driver."""
+    return _first_driver_cells(device)
+
+
+@per_model
+def _first_driver_cells(device: DeviceModel) -> dict[str, BoundaryCell]:
+    return {port: cells[0] for port, cells in device.driver_cells_by_port.items() if cells}
 
 
 def receiver_cells(device: DeviceModel, port: str) -> tuple[BoundaryCell, ...]:
