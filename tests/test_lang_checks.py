@@ -338,6 +338,18 @@ def test_table_rows_must_match_the_columns():
     one(d, "error", 8, 9, r"0b1111 has 4 bits but N is 3 bits wide")
 
 
+def test_a_wrong_table_cell_is_reported_at_its_own_column():
+    # Cells are fitted to their column's width once per distinct value; the message still
+    # points at the cell, on whichever side of the arrow it is.
+    d = diagnose('test t "t" {\n    U1 EXTEST\n    U2 SAMPLE\n    table {\n        N LAMP -> N N0\n'
+                 "        7 1 -> 7 1\n        7 1 -> 0x8 1\n        0 X -> 0 0\n        7 1 -> 0x8 1\n"
+                 "    }\n}\n")
+    one(d, "error", 7, 16, r"0x8 does not fit in N \(3 bits\)")
+    one(d, "error", 8, 11, r"X cannot be driven onto LAMP")
+    one(d, "error", 9, 16, r"0x8 does not fit in N \(3 bits\)")
+    assert len([x for x in d if x.severity == "error"]) == 3
+
+
 def test_table_column_that_cannot_be_driven_is_reported_once():
     d = diagnose('test t "t" {\n    U2 SAMPLE\n    table {\n        N0 -> N0\n        1 -> 1\n'
                  "        0 -> 0\n    }\n}\n")

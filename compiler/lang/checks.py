@@ -12,8 +12,8 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
-from itertools import chain, repeat
-from operator import getitem
+from itertools import chain, compress, repeat
+from operator import attrgetter, getitem, is_, not_
 from typing import Sequence, Union
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
@@ -517,9 +517,9 @@ class _TestChecker:
         memo_key = ("drive", key, id(column))
         found = self.coverage.get(memo_key)
         if found is None:
-            choose = self.scope.choose_driver
-            found = self.coverage[memo_key] = tuple(
-                i for i, bit in enumerate(column.bits) if choose(bit, key, modes) is None)
+            drivers = self.scope.column_drivers(column.bits, key, modes)
+            undriven = map(is_, drivers, repeat(None))
+            found = self.coverage[memo_key] = tuple(compress(column.positions, undriven))
         return found
 
     def unobserved(self, column: ColumnEntries, key: tuple[tuple[str, str], ...],
@@ -529,7 +529,7 @@ class _TestChecker:
         found = self.coverage.get(memo_key)
         if found is None:
             seen = self.scope.observed_by_any(column.bits, modes)
-            found = self.coverage[memo_key] = tuple(i for i, ok in enumerate(seen) if not ok)
+            found = self.coverage[memo_key] = tuple(compress(column.positions, map(not_, seen)))
         return found
 
     def cannot_drive_message(self, signal: ast.Signal, failing: list[BitRef], width: int) -> str:
@@ -743,8 +743,13 @@ class _TestChecker:
             memo_key = (offset + index, cell)
             values = memo.get(memo_key)
             if values is None:
-                placed = dataclasses.replace(cell, span=row.cell_span(offset + index))
-                values = value_bits(placed, column.width, role, signal_text(signal), self.diag)
+                # Fitted without a span first (a large table has thousands of distinct cells);
+                # only a cell that is reported is placed at its column for the message.
+                quiet = Diagnostics()
+                values = value_bits(cell, column.width, role, signal_text(signal), quiet)
+                if quiet.items:
+                    placed = dataclasses.replace(cell, span=row.cell_span(offset + index))
+                    values = value_bits(placed, column.width, role, signal_text(signal), self.diag)
                 if values is None:
                     ok = False
                     continue
@@ -761,9 +766,10 @@ class ColumnEntries(dict):
         self.bits = bits
         self.width = len(bits)
         self.positions = range(len(bits))
-        self.keys = tuple(bit.key for bit in bits)
-        self.targets = tuple(bit.target for bit in bits)
-        self.pins = tuple(bit.is_pin for bit in bits)
+        self.targets = tuple(map(_TARGET, bits))
+        self.pins = tuple(map(_IS_PIN, bits))
+        self.keys = tuple([target if net is None else net
+                           for target, net in zip(self.targets, map(_NET, bits))])
 
     def __missing__(self, char: str) -> tuple[BitValue, ...]:
         made = self[char] = tuple((bit, char, None) for bit in self.bits)
@@ -772,6 +778,11 @@ class ColumnEntries(dict):
     def entries(self, values: str) -> tuple[BitValue, ...]:
         """Bit i's entry for value character values[i], by builtins alone."""
         return tuple(map(getitem, map(self.__getitem__, values), self.positions))
+
+
+_TARGET = attrgetter("target")
+_IS_PIN = attrgetter("is_pin")
+_NET = attrgetter("net")
 
 
 def _names(bits: Sequence[BitRef], limit: int = 4) -> str:

@@ -11,6 +11,8 @@ import bisect
 import re
 from dataclasses import dataclass
 from functools import lru_cache
+from itertools import repeat
+from operator import add, itemgetter, sub
 from pathlib import Path
 
 from lark import Lark, Token, Transformer
@@ -20,6 +22,7 @@ from lark.exceptions import (
 
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, read_source
 from . import ast
+from .bulk_records import frozen_records
 from ..collector import collector_paused
 from ..grammar_support import expected_words, strict_mode_available
 
@@ -39,8 +42,9 @@ _TERMINAL_WORDS = {
 }
 
 _CELL = re.compile(r"\S+")
-# In a MEMBER_LIST token: a comment (skipped), or a member name or pin (group 1).
-_MEMBER_OR_COMMENT = re.compile(r"#[^\r\n]*|([A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z0-9_]+(?:\([0-9]+\))?)?)")
+# In a MEMBER_LIST token, once its comments are blanked out: a member name or pin.
+_MEMBER = re.compile(r"[A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z0-9_]+(?:\([0-9]+\))?)?")
+_COMMENT = re.compile(r"#[^\r\n]*")
 _LINE_BREAK = re.compile(r"\n")
 _COMMENT_OR_STRING = re.compile(r'"(?:[^"\\\r\n]|\\.)*"?|#[^\r\n]*')
 
@@ -226,6 +230,10 @@ def _comments(text: str) -> tuple[ast.Comment, ...]:
 
 # ---- the transformer ----------------------------------------------------------------------
 
+def _blanked(comment: re.Match) -> str:
+    return " " * len(comment.group())
+
+
 def _is_token(item: object, kind: str | None = None) -> bool:
     return isinstance(item, Token) and (kind is None or item.type == kind)
 
@@ -285,22 +293,44 @@ class _ToAst(Transformer):
         return ast.GroupDecl(c[1].value, tuple(members), self._between(c[0], closing), self._tok(c[1]))
 
     def group_list(self, c: list) -> ast.GroupDecl:
-        """A group whose members the lexer took as one MEMBER_LIST token: split it here."""
+        """A group whose members the lexer took as one MEMBER_LIST token: split it here.
+
+        Large boards declare groups of thousands of members, so the split works on whole
+        columns (names, offsets, lines, columns) with builtins, and the members and their
+        spans are made column by column (`bulk_records.frozen_records`).
+        """
         token: Token = c[3]
         text = token.value
-        breaks = [match.start() for match in _LINE_BREAK.finditer(text)]
-        members: list[ast.Signal] = []
-        for match in _MEMBER_OR_COMMENT.finditer(text):
-            name = match.group(1)
-            if name is None:
-                continue  # a comment
-            offset = match.start()
-            before = bisect.bisect_left(breaks, offset)
-            line = token.line + before
-            column = token.column + offset if before == 0 else offset - breaks[before - 1]
-            span = SourceSpan(self.file, line, column, line, column + len(name))
-            ref, dot, port = name.partition(".")
-            members.append(ast.PinSignal(ref, port, span) if dot else ast.NameSignal(name, span))
+        if "#" in text:  # comments blanked out, so that every offset stays where it was
+            text = _COMMENT.sub(_blanked, text)
+        matches = list(_MEMBER.finditer(text))
+        names = list(map(re.Match.group, matches))
+        offsets = list(map(re.Match.start, matches))
+        count = len(names)
+        if "\n" in text:
+            # A member after the k-th line break is on line token.line + k, and its column
+            # counts from that break; before the first break, from the token's own column.
+            breaks = [match.start() for match in _LINE_BREAK.finditer(text)]
+            before = list(map(bisect.bisect_left, repeat(breaks, count), offsets))
+            starts = [-token.column, *breaks]
+            lines: list[int] = list(map(add, before, repeat(token.line, count)))
+            columns = list(map(sub, offsets, map(starts.__getitem__, before)))
+        else:
+            lines = [token.line] * count
+            columns = list(map(add, offsets, repeat(token.column, count)))
+        ends = list(map(add, columns, map(len, names)))
+        spans = frozen_records(SourceSpan, count, repeat(self.file, count), lines, columns, lines, ends)
+        members: list[ast.Signal]
+        dots = list(map(str.find, names, repeat(".", count)))
+        if max(dots, default=-1) < 0:  # plain names only
+            members = frozen_records(ast.NameSignal, count, names, spans)
+        elif min(dots) >= 0:  # pins only
+            parts = list(map(str.partition, names, repeat(".", count)))
+            members = frozen_records(ast.PinSignal, count, map(itemgetter(0), parts),
+                                      map(itemgetter(2), parts), spans)
+        else:
+            members = [ast.PinSignal(name[:dot], name[dot + 1:], span) if dot >= 0 else
+                       ast.NameSignal(name, span) for name, dot, span in zip(names, dots, spans)]
         return ast.GroupDecl(c[1].value, tuple(members), self._between(c[0], token), self._tok(c[1]))
 
     def default_mode(self, c: list) -> ast.DefaultModeDecl:

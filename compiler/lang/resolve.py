@@ -9,13 +9,17 @@ with "did you mean" from the names in scope.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from itertools import accumulate, chain, compress, repeat
+from operator import attrgetter, contains, itemgetter, not_
 from typing import Callable, Iterable, Mapping, Sequence
 
 from ..diagnostics import Diagnostics, SourceSpan, nearest
 from ..models.board import Board, PinRef
 from ..models.cells import PIN, instruction_class, resolve_capture
 from ..models.device import DRIVER_FUNCTIONS, RECEIVER_FUNCTIONS, DeviceModel
+from ..models.model_memo import per_model
 from . import ast
+from .bulk_records import frozen_records
 
 __all__ = ["BitRef", "Scope", "drives_pins", "drives_core", "observes_pins", "CORE_INPUT_FUNCTIONS"]
 
@@ -60,6 +64,76 @@ def observes_pins(device: DeviceModel, instruction: str) -> bool:
     return device.selects.get(instruction) == "BOUNDARY"
 
 
+# ---- tables of a device model (boards repeat their parts: one table per model) -------------
+
+@per_model
+def _port_index(device: DeviceModel) -> dict[str, str]:
+    """Port bits by their upper-case spelling: pins are named case-insensitively."""
+    return {bit.upper(): bit for bit in device.port_bits()}
+
+
+@per_model
+def _scan_port_index(device: DeviceModel) -> dict[str, str]:
+    """`_port_index` without the TAP pins: the ports a pin signal may name."""
+    tap = device.tap
+    taps = {tap.tdi, tap.tdo, tap.tms, tap.tck, tap.trst}
+    return {upper: bit for upper, bit in _port_index(device).items() if bit not in taps}
+
+
+@per_model
+def _driver_ports(device: DeviceModel) -> frozenset[str]:
+    return frozenset(device.driver_cells_by_port)
+
+
+@per_model
+def _core_input_ports(device: DeviceModel) -> frozenset[str]:
+    return frozenset(port for port, cells in device.cells_by_port.items()
+                     if any(c.function in CORE_INPUT_FUNCTIONS for c in cells))
+
+
+@per_model
+def _observed_ports_by_class(device: DeviceModel) -> dict[str, frozenset[str]]:
+    """Per instruction class, the ports whose pin some cell captures (filled on first use)."""
+    return {}
+
+
+def _observed_ports(device: DeviceModel, klass: str) -> frozenset[str]:
+    known = _observed_ports_by_class(device)
+    ports = known.get(klass)
+    if ports is None:
+        found = set()
+        for cell in device.cells:
+            if cell.port is None:
+                continue
+            if cell.function in RECEIVER_FUNCTIONS:
+                found.add(cell.port)
+            elif cell.function in DRIVER_FUNCTIONS and resolve_capture(
+                    device.cell_info.get(cell.cell_type), cell.function, klass, True) == PIN:
+                found.add(cell.port)
+        ports = known[klass] = frozenset(found)
+    return ports
+
+
+@dataclass(frozen=True, slots=True)
+class _DriveTables:
+    """Per device, in one set of modes: the ports its pins can drive (EXTEST, CLAMP) and the
+    ports whose core side INTEST drives; a named pin may be driven either way."""
+
+    pins: dict[str, frozenset[str]]  # what a named pin REF.PORT may be driven by
+    outward: dict[str, frozenset[str]]  # drives the net itself
+    inward: dict[str, frozenset[str]]  # drives the core side (INTEST)
+
+
+_NO_PORTS: frozenset[str] = frozenset()
+
+
+class _NoNet:
+    pins: tuple[PinRef, ...] = ()
+
+
+_NO_NET = _NoNet()
+
+
 class Scope:
     """The names a program may use on one board, with the program's groups."""
 
@@ -69,11 +143,8 @@ class Scope:
         self.nets = board.nets
         self.groups: dict[str, tuple[BitRef, ...]] = {}
         self._pending_groups: dict[str, ast.GroupDecl] = {}
-        self._ports: dict[str, dict[str, str]] = {}
-        self._drivers: dict[str, frozenset[str]] = {}
-        self._core_inputs: dict[str, frozenset[str]] = {}
-        self._observed: dict[tuple[str, str], frozenset[str]] = {}
         self._net_scan_pins: dict[str, tuple[PinRef, ...]] = {}
+        self._drive_tables: dict[tuple[tuple[str, str], ...], _DriveTables] = {}
         # modes of a step -> target -> chosen driver: one dictionary per set of modes, so the
         # lookup per driven bit is a plain string key (tens of thousands of bits per step).
         self._driver_choice: dict[tuple[tuple[str, str], ...], dict[str, str | None]] = {}
@@ -104,22 +175,26 @@ class Scope:
                 return None
             decl = pending[name]
             visiting.append(name)
-            bits: list[BitRef] = []
+            bits = self._plain_members(decl.members)
             ok = True
-            for member in decl.members:
-                member_bits = self._signal(member, diagnostics, resolve)
-                if member_bits is None:
-                    ok = False
-                    continue
-                bits.extend(member_bits)
+            if bits is None:  # groups, slices or wrong names among them: member by member
+                bits = []
+                for member in decl.members:
+                    member_bits = self._signal(member, diagnostics, resolve)
+                    if member_bits is None:
+                        ok = False
+                        continue
+                    bits.extend(member_bits)
             visiting.pop()
-            seen: dict[str, BitRef] = {}
-            for bit in bits:
-                if bit.key in seen:
-                    diagnostics.error(f"{bit.target} appears twice in group {name}", decl.name_span)
-                    ok = False
-                    break
-                seen[bit.key] = bit
+            keys = _keys(bits)
+            if len(set(keys)) != len(keys):
+                seen: set[str] = set()
+                for bit, key in zip(bits, keys):
+                    if key in seen:
+                        diagnostics.error(f"{bit.target} appears twice in group {name}", decl.name_span)
+                        ok = False
+                        break
+                    seen.add(key)
             result = tuple(bits) if ok else None
             if result is not None:
                 self.groups[name] = result
@@ -132,6 +207,35 @@ class Scope:
             if name not in self.groups:
                 resolve(name)
         self._pending_groups = {}
+
+    def _plain_members(self, members: Sequence[ast.Signal]) -> list[BitRef] | None:
+        """The bits of a member list of nets only or scan pins only, worked out a column at a
+        time (groups of large boards have thousands of members); None when some member needs
+        more (a group, a slice, a name that is no net, a pin that is no scan pin): then the
+        members are resolved one by one, which reports what is wrong.
+        """
+        count = len(members)
+        kinds = set(map(type, members))
+        if kinds == {ast.NameSignal}:
+            names = list(map(_NAME, members))
+            wanted = set(names)
+            if not wanted <= self.nets.keys() or not wanted.isdisjoint(self.groups) or \
+                    not wanted.isdisjoint(self._pending_groups):
+                return None
+            return frozen_records(BitRef, count, names, repeat(False, count), names)
+        if kinds == {ast.PinSignal}:
+            refs = list(map(_REF, members))
+            devices = self.devices
+            if not devices.keys() >= set(refs):
+                return None
+            indexes = {ref: _scan_port_index(devices[ref].device) for ref in set(refs)}
+            ports = list(map(dict.get, map(indexes.__getitem__, refs), map(str.upper, map(_PORT, members))))
+            if None in ports:
+                return None
+            targets = list(map(".".join, zip(refs, ports)))
+            nets = map(self.board.net_of_pin.get, zip(refs, ports))  # PinRef keys equal plain pairs
+            return frozen_records(BitRef, count, targets, repeat(True, count), nets)
+        return None
 
     # ---- signals ----------------------------------------------------------------------------
     def signal(self, signal: ast.Signal, diagnostics: Diagnostics) -> tuple[BitRef, ...] | None:
@@ -218,7 +322,7 @@ class Scope:
                               suggestions=nearest(ref, list(self.devices) + list(self.board.parts)))
             return None
         device = self.devices[ref].device
-        ports = self._port_index(ref)
+        ports = _port_index(device)
         port = ports.get(signal.port.upper())
         if port is None:
             if signal.port.upper() in {p.upper() for p in device.ports}:
@@ -235,13 +339,6 @@ class Scope:
             return None
         target = f"{ref}.{port}"
         return BitRef(target, True, self.board.net_of_pin.get(PinRef(ref, port)))
-
-    def _port_index(self, ref: str) -> dict[str, str]:
-        index = self._ports.get(ref)
-        if index is None:
-            index = {bit.upper(): bit for bit in self.devices[ref].device.port_bits()}
-            self._ports[ref] = index
-        return index
 
     # ---- instructions and registers ---------------------------------------------------------
     def instruction(self, ref: str, name: str, span: SourceSpan | None,
@@ -288,39 +385,17 @@ class Scope:
     # ---- what each device can do ------------------------------------------------------------
     def driver_ports(self, ref: str) -> frozenset[str]:
         """Ports with an OUTPUT2, OUTPUT3 or BIDIR cell (the device model's own index)."""
-        ports = self._drivers.get(ref)
-        if ports is None:
-            ports = self._drivers[ref] = frozenset(self.devices[ref].device.driver_cells_by_port)
-        return ports
+        return _driver_ports(self.devices[ref].device)
 
     def core_input_ports(self, ref: str) -> frozenset[str]:
         """Ports whose input cell drives the core side under INTEST."""
-        ports = self._core_inputs.get(ref)
-        if ports is None:
-            ports = self._core_inputs[ref] = frozenset(
-                port for port, cells in self.devices[ref].device.cells_by_port.items()
-                if any(c.function in CORE_INPUT_FUNCTIONS for c in cells))
-        return ports
+        return _core_input_ports(self.devices[ref].device)
 
     def observed_ports(self, ref: str, instruction: str) -> frozenset[str]:
         """Ports whose pin some boundary cell captures under `instruction` (cells.py tables)."""
-        key = (ref, instruction)
-        ports = self._observed.get(key)
-        if ports is None:
-            device = self.devices[ref].device
-            klass = instruction_class(instruction, device.selects.get(instruction)) or "SAMPLE"
-            found = set()
-            for cell in device.cells:
-                if cell.port is None:
-                    continue
-                if cell.function in RECEIVER_FUNCTIONS:
-                    found.add(cell.port)
-                elif cell.function in DRIVER_FUNCTIONS and resolve_capture(
-                        device.cell_info.get(cell.cell_type), cell.function, klass, True) == PIN:
-                    found.add(cell.port)
-            ports = frozenset(found)
-            self._observed[key] = ports
-        return ports
+        device = self.devices[ref].device
+        klass = instruction_class(instruction, device.selects.get(instruction)) or "SAMPLE"
+        return _observed_ports(device, klass)
 
     def scan_pins(self, net: str) -> tuple[PinRef, ...]:
         """The net's pins on scan devices, in chain order."""
@@ -340,6 +415,24 @@ class Scope:
             return pin.port in self.core_input_ports(pin.ref)
         return False
 
+    def _tables(self, modes_key: tuple[tuple[str, str], ...], modes: Modes) -> _DriveTables:
+        """What each device can drive in these modes (once per set of modes)."""
+        tables = self._drive_tables.get(modes_key)
+        if tables is None:
+            pins: dict[str, frozenset[str]] = {}
+            outward: dict[str, frozenset[str]] = {}
+            inward: dict[str, frozenset[str]] = {}
+            for ref, mode in modes.items():
+                entry = self.devices.get(ref)
+                if entry is None:
+                    continue
+                onto_pins = drives_pins(entry.device, mode)
+                outward[ref] = _driver_ports(entry.device) if onto_pins else _NO_PORTS
+                inward[ref] = _core_input_ports(entry.device) if drives_core(mode) else _NO_PORTS
+                pins[ref] = outward[ref] if onto_pins else inward[ref]
+            tables = self._drive_tables[modes_key] = _DriveTables(pins, outward, inward)
+        return tables
+
     def choose_driver(self, bit: BitRef, modes_key: tuple[tuple[str, str], ...],
                       modes: Modes) -> str | None:
         """The scan pin that drives `bit`: the named pin, else the first capable one in chain order.
@@ -351,45 +444,77 @@ class Scope:
             chosen = self._driver_choice.setdefault(modes_key, {})
         elif bit.target in chosen:
             return chosen[bit.target]
-        choice: str | None = None
+        tables = self._tables(modes_key, modes)
         if bit.is_pin:
-            pin = PinRef.parse(bit.target)
-            choice = bit.target if self.can_drive(pin, modes) else None
+            ref, _, port = bit.target.partition(".")
+            choice = bit.target if port in tables.pins[ref] else None
         else:
-            candidates = self.scan_pins(bit.target)
-            for pin in candidates:
-                if drives_pins(self.devices[pin.ref].device, modes[pin.ref]) and \
-                        pin.port in self.driver_ports(pin.ref):
-                    choice = str(pin)
-                    break
-            else:
-                for pin in candidates:
-                    if drives_core(modes[pin.ref]) and pin.port in self.core_input_ports(pin.ref):
-                        choice = str(pin)
-                        break
+            choice = self._net_driver(bit.target, tables)
         chosen[bit.target] = choice
         return choice
 
+    def column_drivers(self, bits: Sequence[BitRef], modes_key: tuple[tuple[str, str], ...],
+                       modes: Modes) -> tuple[str | None, ...]:
+        """`choose_driver` for each bit of a column, the named pins a column at a time."""
+        chosen = self._driver_choice.setdefault(modes_key, {})
+        targets = list(map(_TARGET, bits))
+        todo = [bit for bit in bits if bit.target not in chosen]
+        if todo:
+            tables = self._tables(modes_key, modes)
+            pins = [bit.target for bit in todo if bit.is_pin]
+            if pins:
+                parts = list(map(str.partition, pins, repeat(".")))
+                capable = list(map(contains, map(tables.pins.__getitem__, map(_FIRST, parts)),
+                                   map(_THIRD, parts)))
+                chosen.update(zip(pins, repeat(None)))
+                chosen.update(zip(compress(pins, capable), compress(pins, capable)))  # itself
+            for bit in todo:
+                if not bit.is_pin:
+                    chosen[bit.target] = self._net_driver(bit.target, tables)
+        return tuple(map(chosen.__getitem__, targets))
+
+    def _net_driver(self, net: str, tables: _DriveTables) -> str | None:
+        candidates = self.scan_pins(net)
+        for pin in candidates:
+            if pin.port in tables.outward[pin.ref]:
+                return str(pin)
+        for pin in candidates:
+            if pin.port in tables.inward[pin.ref]:
+                return str(pin)
+        return None
+
     def observed_by_any(self, bits: Sequence[BitRef], modes: Modes) -> list[bool]:
         """For each bit, whether some scan pin captures it in these modes: `observers`
-        reduced to a yes or no, for whole columns (no sorting, no pin names)."""
+        reduced to a yes or no, for whole columns (no sorting, no pin names, no Python code
+        per bit: a column of a large board has thousands of bits)."""
         observing: dict[str, frozenset[str]] = {}
         for ref, mode in modes.items():
             entry = self.devices.get(ref)
             if entry is not None and observes_pins(entry.device, mode):
                 observing[ref] = self.observed_ports(ref, mode)
-        nets = self.nets
-        none: frozenset[str] = frozenset()
-        out: list[bool] = []
-        for bit in bits:
-            if bit.is_pin:
-                ref, _, port = bit.target.partition(".")
-                out.append(port in observing.get(ref, none))
-            else:
-                net = nets.get(bit.target)
-                out.append(net is not None and any(
-                    pin.port in observing.get(pin.ref, none) for pin in net.pins))
-        return out
+        targets = list(map(_TARGET, bits))
+        is_pin = list(map(_IS_PIN, bits))
+        pin_targets = list(compress(targets, is_pin))
+        net_targets = list(compress(targets, map(not_, is_pin)))
+        pins_seen: list[bool] = []
+        nets_seen: list[bool] = []
+        if pin_targets:  # the pin's own port, on its own device
+            parts = list(map(str.partition, pin_targets, repeat(".")))
+            pins_seen = list(map(contains, map(observing.get, map(_FIRST, parts), repeat(_NO_PORTS)),
+                                 map(_THIRD, parts)))
+        if net_targets:  # any pin of the net: every pin's answer, then any() over each net's share
+            on_net = list(map(_PINS, map(self.nets.get, net_targets, repeat(_NO_NET))))
+            every = list(chain.from_iterable(on_net))
+            seen = list(map(contains, map(observing.get, map(_FIRST, every), repeat(_NO_PORTS)),
+                            map(_SECOND, every)))
+            ends = list(accumulate(map(len, on_net)))
+            nets_seen = list(map(any, map(seen.__getitem__, map(slice, [0, *ends[:-1]], ends))))
+        if not net_targets:
+            return pins_seen
+        if not pin_targets:
+            return nets_seen
+        pin_answers, net_answers = iter(pins_seen), iter(nets_seen)
+        return [next(pin_answers) if pin else next(net_answers) for pin in is_pin]
 
     def could_observe(self, bit: BitRef) -> tuple[str, ...]:
         """Devices that could capture `bit` under SAMPLE, whatever their mode now."""
@@ -400,3 +525,22 @@ class Scope:
     def could_drive(self, bit: BitRef) -> tuple[str, ...]:
         pins = (PinRef.parse(bit.target),) if bit.is_pin else self.scan_pins(bit.target)
         return tuple(dict.fromkeys(p.ref for p in pins if p.port in self.driver_ports(p.ref)))
+
+
+_NAME = attrgetter("name")
+_REF = attrgetter("ref")
+_PORT = attrgetter("port")
+_TARGET = attrgetter("target")
+_IS_PIN = attrgetter("is_pin")
+_PINS = attrgetter("pins")
+_FIRST = itemgetter(0)
+_SECOND = itemgetter(1)
+_THIRD = itemgetter(2)
+
+
+def _keys(bits: Sequence[BitRef]) -> list[str]:
+    """Each bit's `key` (its net, else the pin itself), for a whole column."""
+    return [target if net is None else net for target, net in zip(map(_TARGET, bits), map(_NET, bits))]
+
+
+_NET = attrgetter("net")
