@@ -186,8 +186,9 @@ def test_unknown_cell_type_captures_x_and_is_remembered() -> None:
 # ------------------------------------------------------------------------------ chain-wide images
 
 @st.composite
-def _devices_and_drives(draw):
-    """A few random devices (outputs with own, shared or no controls) and random drives."""
+def _devices_and_drives(draw, every_output: bool = False):
+    """A few random devices (outputs with own, shared or no controls) and random drives; with
+    `every_output`, every device drives (EXTEST or CLAMP) and every output is driven 0 or 1."""
     devices = []
     for d in range(draw(st.integers(1, 3))):
         specs = []
@@ -208,18 +209,22 @@ def _devices_and_drives(draw):
                               function, draw(st.sampled_from("01X")), control, disable, "Z"))
                 number += 1
         devices.append((f"U{d}", make_device(f"D{d}", 3, specs)))
-    kinds = tuple(draw(st.sampled_from([DRIVE, CLAMP, OBSERVE, BYPASS])) for _ in devices)
+    modes = [DRIVE, CLAMP] if every_output else [DRIVE, CLAMP, OBSERVE, BYPASS]
+    kinds = tuple(draw(st.sampled_from(modes)) for _ in devices)
     drives = []
     for ref, device in devices:
         for port in sorted(device_tables(ref, device).drivers):
-            if draw(st.booleans()):
-                drives.append(Drive(port, False, draw(st.sampled_from("01Z")), f"{ref}.{port}"))
+            if every_output or draw(st.booleans()):
+                value = draw(st.sampled_from("01" if every_output else "01Z"))
+                drives.append(Drive(port, False, value, f"{ref}.{port}"))
     return devices, kinds, drives
 
 
 @settings(max_examples=150, deadline=None)
-@given(_devices_and_drives())
+@given(st.one_of(_devices_and_drives(), _devices_and_drives(every_output=True)))
 def test_chain_images_agree_with_the_per_device_reference(case) -> None:
+    # Steps that drive every output 0 or 1 take the one-scatter path (ChainImages._build);
+    # both paths must give build_image's images.
     devices, kinds, drives = case
     tables = [device_tables(ref, device) for ref, device in devices]
     built = ChainImages(tables).build(kinds, drives)
@@ -235,3 +240,13 @@ def test_chain_images_agree_with_the_per_device_reference(case) -> None:
                 assert set(reference.problems) <= set(built.problems)
         else:
             assert built.images[idx] is None
+
+
+@settings(max_examples=30, deadline=None)
+@given(_devices_and_drives(every_output=True))
+def test_a_step_driving_every_output_takes_the_one_scatter_path(case) -> None:
+    devices, kinds, drives = case
+    tables = [device_tables(ref, device) for ref, device in devices]
+    images = ChainImages(tables)
+    drivers = tuple(d.driver for d in drives)
+    assert images._table(kinds, drivers).all_driven is not None

@@ -34,7 +34,8 @@ __all__ = [
     "values_as_bits",
 ]
 
-Receivers = Callable[[str, bool], Iterable[tuple[int, BoundaryCell]]]
+# The scan pins a target sits on: (chain index, port) for a pin, or for every scan pin of a net.
+ScanPins = Callable[[str, bool], Iterable[tuple[int, str]]]
 
 _ONES = str.maketrans("01XZ", "0100")
 _ZEROS = str.maketrans("01XZ", "1000")
@@ -105,6 +106,7 @@ class ExpectationTable:
     pin_position: list[int]
     pin_owner: list[int]  # index of the expectation
     pins_one_each: bool  # pin_owner is 0, 1, 2 ...: exactly one pin per expectation, in order
+    pins_apart: bool  # no two pin entries share a position: their bits can be scattered at once
     latch_position: list[int]
     latch_owner: list[int]
     dyn_position: list[int]
@@ -142,7 +144,7 @@ def _how_observed(resolver: CaptureResolver, idx: int, tables: DeviceTables, cel
 
 
 def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], targets: Sequence[str],
-                            is_pin: Sequence[bool], receivers: Receivers,
+                            is_pin: Sequence[bool], scan_pins: ScanPins,
                             tables: Sequence[DeviceTables], offsets: Sequence[int],
                             chain_starts: Sequence[int],
                             resolver: CaptureResolver) -> ExpectationTable:
@@ -154,38 +156,41 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
     dyn: list[tuple[int, int, int, bool, str, str]] = []
     unobservable: list[int] = []
     dynamic_only: list[int] = []
-    # How a cell observes its pin under a device's mode and kind, worked out once per cell of
-    # a device model (boards repeat parts): (_NONE | _PIN | _LATCH | _DYNAMIC, captured while
-    # driving, captured while idle, whether its cell type has no capture description).
-    how_of: dict[tuple[int, str, str], tuple[int, str, str, bool]] = {}
+    # How the cells of a port observe it under a device's mode and kind, worked out once per
+    # port of a device model (boards repeat parts): (cell, _NONE | _PIN | _LATCH | _DYNAMIC,
+    # captured while driving, captured while idle, whether its cell type has no description).
+    how_of: dict[tuple[int, str, str, str], tuple[tuple[BoundaryCell, int, str, str, bool], ...]] = {}
     unknown_types = resolver.unknown_types
     for owner, (target, pin) in enumerate(zip(targets, is_pin)):
         observed = False
         static = False
-        for idx, cell in receivers(target, pin):
+        for idx, port in scan_pins(target, pin):
             kind = kinds[idx]
             if kind not in BOUNDARY_KINDS:
                 continue
-            key = (id(cell), modes[idx], kind)
-            how = how_of.get(key)
-            if how is None:
-                how = how_of[key] = _how_observed(resolver, idx, tables[idx], cell, modes[idx], kind)
-            code, driving, idle, unknown = how
-            if unknown and (tables[idx].ref, cell.cell_type) not in unknown_types:
-                unknown_types.append((tables[idx].ref, cell.cell_type))
-            if code == _PIN:
-                pin_position.append(offsets[idx] + cell.number)
-                pin_owner.append(owner)
-                observed = static = True
-            elif code == _LATCH:
-                latch_position.append(offsets[idx] + cell.number)
-                latch_owner.append(owner)
-                observed = static = True
-            elif code == _DYNAMIC:
-                dyn.append((offsets[idx] + cell.number, owner,
-                            chain_starts[idx] + cell.control_cell,  # type: ignore[operator]
-                            bool(cell.disable_value), driving, idle))
-                observed = True
+            device_tables = tables[idx]
+            key = (id(device_tables.observers), modes[idx], kind, port)
+            hows = how_of.get(key)
+            if hows is None:
+                hows = how_of[key] = tuple(
+                    (cell, *_how_observed(resolver, idx, device_tables, cell, modes[idx], kind))
+                    for cell in device_tables.observers.get(port, ()))
+            for cell, code, driving, idle, unknown in hows:
+                if unknown and (device_tables.ref, cell.cell_type) not in unknown_types:
+                    unknown_types.append((device_tables.ref, cell.cell_type))
+                if code == _PIN:
+                    pin_position.append(offsets[idx] + cell.number)
+                    pin_owner.append(owner)
+                    observed = static = True
+                elif code == _LATCH:
+                    latch_position.append(offsets[idx] + cell.number)
+                    latch_owner.append(owner)
+                    observed = static = True
+                elif code == _DYNAMIC:
+                    dyn.append((offsets[idx] + cell.number, owner,
+                                chain_starts[idx] + cell.control_cell,  # type: ignore[operator]
+                                bool(cell.disable_value), driving, idle))
+                    observed = True
         if not observed:
             unobservable.append(owner)
         elif not static:
@@ -200,6 +205,7 @@ def build_expectation_table(modes: tuple[str, ...], kinds: Sequence[str], target
         pin_position=pin_position,
         pin_owner=pin_owner,
         pins_one_each=pin_owner == list(range(len(targets))),
+        pins_apart=len(set(pin_position)) == len(pin_position),
         latch_position=latch_position,
         latch_owner=latch_owner,
         dyn_position=[d[0] for d in dyn],
@@ -238,8 +244,15 @@ def compare_expectations(table: ExpectationTable, values: str, chain_image: bita
     else:
         owner_compared = compared[table.pin_owner]
         owner_one = ones[table.pin_owner]
-    mask[list(compress(table.pin_position, owner_compared))] = 1
-    tdo[list(compress(table.pin_position, owner_one))] = 1
+    if table.pins_apart and table.pin_position:
+        scatter = bitarray(len(mask))
+        for bits, target in ((owner_compared, mask), (owner_one, tdo)):
+            scatter.setall(0)
+            scatter[table.pin_position] = bits
+            target |= scatter
+    else:
+        mask[list(compress(table.pin_position, owner_compared))] = 1
+        tdo[list(compress(table.pin_position, owner_one))] = 1
     latches = list(compress(table.latch_position,
                             compared[table.latch_owner]))
     unobserved: list[int] = []

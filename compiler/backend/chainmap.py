@@ -7,6 +7,8 @@ going back to the BSDL files or the board file.
 
 from __future__ import annotations
 
+from itertools import repeat
+
 from ..models.board import Board, ChainDevice
 from ..models.device import DeviceModel
 from ..models.model_memo import per_model
@@ -46,7 +48,9 @@ def _device_map(entry: ChainDevice, net_of_port: dict[str | None, str]) -> Devic
     device = entry.device
     numbers, types, functions, ports = _cell_columns(device)
     # An internal cell (port None) looks up None, which no port is: it has no net.
-    cells = tuple(map(CellMeaning, numbers, types, functions, ports, map(net_of_port.get, ports)))
+    # (tuple.__new__ makes the named tuples without a Python-level call per cell)
+    cells = tuple(map(tuple.__new__, repeat(CellMeaning),
+                      zip(numbers, types, functions, ports, map(net_of_port.get, ports))))
     return DeviceMap(
         ref=entry.ref,
         entity=device.entity,

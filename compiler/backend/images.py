@@ -328,6 +328,10 @@ class _DriveTable:
     enable_zero: frozenbitarray  # regular drives whose control enables at 0
     two_state: frozenbitarray  # regular drives without a control cell
     odd: tuple[int, ...]  # every other drive: INTEST, or not applicable (with a reason)
+    # The chain image with every drive's output enabled, when all drives are regular and no
+    # cell is both a data cell twice or a data and a control cell: a step that drives every
+    # output to 0 or 1 is then this image with the data cells set, one scatter.
+    all_driven: frozenbitarray | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -413,9 +417,18 @@ class ChainImages:
             enable_one.append(has_control and found is not None and found.enable_value == 1)
             enable_zero.append(has_control and found is not None and found.enable_value == 0)
             two_state.append(found is not None and not has_control)
+        all_driven = None
+        if data and not odd and len(set(data)) == len(data):
+            zero_controls = list(compress(control, enable_zero))
+            one_controls = list(compress(control, enable_one))
+            if set(data).isdisjoint(zero_controls) and set(data).isdisjoint(one_controls):
+                image = bitarray(self.disabled)
+                image[zero_controls] = 0  # in the order of the general path: ones win
+                image[one_controls] = 1
+                all_driven = frozenbitarray(image)
         return _DriveTable(kinds, drivers, data, control, frozenbitarray(regular),
                            frozenbitarray(enable_one), frozenbitarray(enable_zero),
-                           frozenbitarray(two_state), tuple(odd))
+                           frozenbitarray(two_state), tuple(odd), all_driven)
 
     def build(self, kinds: tuple[str, ...], drives: Sequence[Drive]) -> StepImages:
         """Each device's image for a step (IEEE 1149.1 boundary-register rules, see build_image)."""
@@ -445,8 +458,11 @@ class ChainImages:
                     problems.append(f"drive on {target}: value {value!r} is not 0, 1 "
                                     "or Z; released instead")
             text = "".join(v if v in _DRIVE_VALUES else "Z" for v in text)
-        image = bitarray(self.disabled)
-        if drives:
+        if table.all_driven is not None and "Z" not in text:
+            image = bitarray(table.all_driven)
+            image[table.data] = bitarray(text.translate(_ONES))
+        elif drives:
+            image = bitarray(self.disabled)
             ones = bitarray(text.translate(_ONES)) & table.regular
             zeros_ = bitarray(text.translate(_ZEROS)) & table.regular
             driven = ones | zeros_
@@ -458,6 +474,8 @@ class ChainImages:
             released = table.regular & ~driven
             if released.any():
                 self._check_releases(table, released, image, problems)
+        else:
+            image = bitarray(self.disabled)
         intest: dict[int, list[tuple[str, str]]] = {}
         for number in table.odd:
             self._odd_drive(drives[number], text[number], kinds, intest, problems)

@@ -22,7 +22,6 @@ from bitarray import bitarray, frozenbitarray
 from ..ir import COMPUTED, ChainScan, Program, RegisterRead, Step, TapReset, Test, Wait
 from ..collector import collector_paused
 from ..models.board import Board, PinRef
-from ..models.device import BoundaryCell
 from .chainmap import build_chain_map, register_lengths
 from .captures import (
     CaptureResolver, ExpectationTable, build_expectation_table, compare_expectations,
@@ -439,8 +438,8 @@ class _Scheduler:
         return writes
 
     # ----------------------------------------------------------------------------- responses
-    def _receivers(self, target: str, is_pin: bool) -> Iterator[tuple[int, BoundaryCell]]:
-        """Every (device, cell) that sits on the pin, or on any scan pin of the net."""
+    def _scan_pins(self, target: str, is_pin: bool) -> Iterator[tuple[int, str]]:
+        """(chain index, port) of the pin, or of every scan pin of the net."""
         pins: tuple[PinRef, ...] = ()
         if is_pin:
             pin = PinRef.parse(target)
@@ -453,11 +452,11 @@ class _Scheduler:
         else:
             net = self.board.nets.get(target)
             pins = net.pins if net is not None else ()
+        index = self.index
         for pin in pins:
-            idx = self.index.get(pin.ref)
+            idx = index.get(pin.ref)
             if idx is not None:
-                for cell in self.tables[idx].observers.get(pin.port, ()):
-                    yield idx, cell
+                yield idx, pin.port
 
     def _response(self, test: str, step: Step, modes: tuple[str, ...], kinds: tuple[str, ...],
                   layout: _Layout, chain_image: frozenbitarray,
@@ -478,7 +477,7 @@ class _Scheduler:
             if table is None or table.modes != modes or \
                     (table.targets is not targets and table.targets != targets):
                 table = build_expectation_table(
-                    modes, kinds, targets, expects.pins, self._receivers,
+                    modes, kinds, targets, expects.pins, self._scan_pins,
                     self.tables, layout.offsets, self.chain_images.starts, self.resolver)
                 self._expectation_table = table
             values = expects.values
