@@ -71,15 +71,19 @@ class _Records:
         key = (modes, id(column))
         found = self.drivers.get(key)
         if found is None:
-            found = self.drivers[key] = tuple(self.driver(bit, modes) for bit in column.bits)
+            found = self.drivers[key] = self.scope.column_drivers(
+                column.bits, modes, self.modes_by_name(modes))
         return found
 
     def driver(self, bit: BitRef, modes: Modes) -> str | None:
         """The scan pin that drives `bit` under these modes (the scope remembers its choices)."""
+        return self.scope.choose_driver(bit, modes, self.modes_by_name(modes))
+
+    def modes_by_name(self, modes: Modes) -> dict[str, str]:
         by_name = self.mode_names.get(modes)
         if by_name is None:
             by_name = self.mode_names[modes] = dict(modes)
-        return self.scope.choose_driver(bit, modes, by_name)
+        return by_name
 
     def drive(self, bit: BitRef, value: str, span: SourceSpan | None, modes: Modes) -> Drive:
         """One bit's drive (the general path, bit by bit)."""
