@@ -53,6 +53,8 @@ def test_observed_by_any_equals_asking_pin_by_pin(seed: int, picks: list[int]) -
              if pin.ref in board.devices]
     expected = [_observed_pin_by_pin(scope, bit, modes) for bit in bits]
     assert scope.observed_by_any(bits, modes) == expected
+    targets, pins = [bit.target for bit in bits], [bit.is_pin for bit in bits]
+    assert Scope(board).observed_by_any(bits, modes, targets, pins) == expected
     # A board always has bits both ways under SAMPLE everywhere: the test is not vacuous there.
     sample = {ref: "SAMPLE" for ref in board.devices}
     assert any(scope.observed_by_any(bits, sample))
@@ -100,6 +102,8 @@ def test_column_drivers_equal_choosing_pin_by_pin(seed: int, picks: list[int], s
     singles = [by_column.choose_driver(bit, key, modes) for bit in bits[:half]]
     assert singles == expected[:half]
     assert list(by_column.column_drivers(bits, key, modes)) == expected
+    targets, pins = [bit.target for bit in bits], [bit.is_pin for bit in bits]
+    assert list(Scope(board).column_drivers(bits, key, modes, targets, pins)) == expected
     assert [Scope(board).choose_driver(bit, key, modes) for bit in bits] == expected
     # Everywhere EXTEST, every net with an output cell on it has a driver: not vacuous.
     extest = {ref: "EXTEST" for ref in board.devices}

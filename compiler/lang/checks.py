@@ -517,7 +517,7 @@ class _TestChecker:
         memo_key = ("drive", key, id(column))
         found = self.coverage.get(memo_key)
         if found is None:
-            drivers = self.scope.column_drivers(column.bits, key, modes)
+            drivers = self.scope.column_drivers(column.bits, key, modes, column.targets, column.pins)
             undriven = map(is_, drivers, repeat(None))
             found = self.coverage[memo_key] = tuple(compress(column.positions, undriven))
         return found
@@ -528,7 +528,7 @@ class _TestChecker:
         memo_key = ("observe", key, id(column))
         found = self.coverage.get(memo_key)
         if found is None:
-            seen = self.scope.observed_by_any(column.bits, modes)
+            seen = self.scope.observed_by_any(column.bits, modes, column.targets, column.pins)
             found = self.coverage[memo_key] = tuple(compress(column.positions, map(not_, seen)))
         return found
 
@@ -701,7 +701,6 @@ class _TestChecker:
         # header, for the first row whose values need it (a release or an X needs nothing).
         reported: set[int] = set()
         columns = [self.column(bits) for bits in chain(drive_cols, expect_cols)]  # type: ignore[arg-type]
-        memo: dict[tuple, str] = {}
         n_drive, n_expect = len(drive_cols), len(expect_cols)
         for number, row in enumerate(table.rows, start=1):
             if table.name is None:
@@ -713,9 +712,8 @@ class _TestChecker:
                 self.diag.error(f"the row has {len(row.drives)} drive and {len(row.expects)} expect "
                                 f"cells; the table has {n_drive} and {n_expect} columns", row.span)
                 continue
-            drives = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, memo, 0)
-            expects = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT,
-                                     memo, n_drive)
+            drives = self.row_cells(row, row.drives, columns, table.drive_columns, DRIVE, 0)
+            expects = self.row_cells(row, row.expects, columns, table.expect_columns, EXPECT, n_drive)
             if drives is None or expects is None:
                 continue
             for index, (signal, assigned) in enumerate(drives):
@@ -732,16 +730,17 @@ class _TestChecker:
             self.unused_modes.clear()
 
     def row_cells(self, row: ast.TableRow, cells: Sequence[ast.Value], columns: list[ColumnEntries],
-                  signals: Sequence[ast.Signal], role: str, memo: dict[tuple, str],
+                  signals: Sequence[ast.Signal], role: str,
                   offset: int) -> list[tuple[ast.Signal, Assigned]] | None:
-        """Each cell as assigned bits (equal cells of a column fitted once). Cells carry no
-        span of their own, so neither do their bits: the row's span stands for them."""
+        """Each cell as assigned bits (equal values fitted once per width and role, as
+        statements' values are). Cells carry no span of their own, so neither do their bits:
+        the row's span stands for them."""
         out: list[tuple[ast.Signal, Assigned]] = []
         ok = True
         for index, (cell, signal) in enumerate(zip(cells, signals)):
             column = columns[offset + index]
-            memo_key = (offset + index, cell)
-            values = memo.get(memo_key)
+            memo_key = (cell, column.width, role)
+            values = self.values.get(memo_key)
             if values is None:
                 # Fitted without a span first (a large table has thousands of distinct cells);
                 # only a cell that is reported is placed at its column for the message.
@@ -753,7 +752,7 @@ class _TestChecker:
                 if values is None:
                     ok = False
                     continue
-                memo[memo_key] = values
+                self.values[memo_key] = values
             out.append((signal, Assigned(column, values, None)))
         return out if ok else None
 
@@ -768,8 +767,9 @@ class ColumnEntries(dict):
         self.positions = range(len(bits))
         self.targets = tuple(map(_TARGET, bits))
         self.pins = tuple(map(_IS_PIN, bits))
-        self.keys = tuple([target if net is None else net
-                           for target, net in zip(self.targets, map(_NET, bits))])
+        nets = tuple(map(_NET, bits))  # a bit's key is its net, else the pin itself
+        self.keys = nets if None not in nets else tuple(
+            [target if net is None else net for target, net in zip(self.targets, nets)])
 
     def __missing__(self, char: str) -> tuple[BitValue, ...]:
         made = self[char] = tuple((bit, char, None) for bit in self.bits)

@@ -145,6 +145,7 @@ class Scope:
         self._pending_groups: dict[str, ast.GroupDecl] = {}
         self._net_scan_pins: dict[str, tuple[PinRef, ...]] = {}
         self._drive_tables: dict[tuple[tuple[str, str], ...], _DriveTables] = {}
+        self._observing_in: dict[tuple[tuple[str, str], ...], dict[str, frozenset[str]]] = {}
         # modes of a step -> target -> chosen driver: one dictionary per set of modes, so the
         # lookup per driven bit is a plain string key (tens of thousands of bits per step).
         self._driver_choice: dict[tuple[tuple[str, str], ...], dict[str, str | None]] = {}
@@ -454,23 +455,25 @@ class Scope:
         return choice
 
     def column_drivers(self, bits: Sequence[BitRef], modes_key: tuple[tuple[str, str], ...],
-                       modes: Modes) -> tuple[str | None, ...]:
-        """`choose_driver` for each bit of a column, the named pins a column at a time."""
+                       modes: Modes, targets: Sequence[str] | None = None,
+                       is_pin: Sequence[bool] | None = None) -> tuple[str | None, ...]:
+        """`choose_driver` for each bit of a column, the named pins a column at a time
+        (`targets` and `is_pin`: the bits' own, when the caller has them already)."""
         chosen = self._driver_choice.setdefault(modes_key, {})
-        targets = list(map(_TARGET, bits))
-        todo = [bit for bit in bits if bit.target not in chosen]
-        if todo:
+        if targets is None or is_pin is None:
+            targets, is_pin = list(map(_TARGET, bits)), list(map(_IS_PIN, bits))
+        if not chosen.keys() >= set(targets):
             tables = self._tables(modes_key, modes)
-            pins = [bit.target for bit in todo if bit.is_pin]
+            pins = [target for target, pin in zip(targets, is_pin) if pin and target not in chosen]
             if pins:
                 parts = list(map(str.partition, pins, repeat(".")))
                 capable = list(map(contains, map(tables.pins.__getitem__, map(_FIRST, parts)),
                                    map(_THIRD, parts)))
                 chosen.update(zip(pins, repeat(None)))
                 chosen.update(zip(compress(pins, capable), compress(pins, capable)))  # itself
-            for bit in todo:
-                if not bit.is_pin:
-                    chosen[bit.target] = self._net_driver(bit.target, tables)
+            for target in compress(targets, map(not_, is_pin)):
+                if target not in chosen:
+                    chosen[target] = self._net_driver(target, tables)
         return tuple(map(chosen.__getitem__, targets))
 
     def _net_driver(self, net: str, tables: _DriveTables) -> str | None:
@@ -483,17 +486,15 @@ class Scope:
                 return str(pin)
         return None
 
-    def observed_by_any(self, bits: Sequence[BitRef], modes: Modes) -> list[bool]:
+    def observed_by_any(self, bits: Sequence[BitRef], modes: Modes, targets: Sequence[str] | None = None,
+                        is_pin: Sequence[bool] | None = None) -> list[bool]:
         """For each bit, whether some scan pin captures it in these modes: `observers`
         reduced to a yes or no, for whole columns (no sorting, no pin names, no Python code
-        per bit: a column of a large board has thousands of bits)."""
-        observing: dict[str, frozenset[str]] = {}
-        for ref, mode in modes.items():
-            entry = self.devices.get(ref)
-            if entry is not None and observes_pins(entry.device, mode):
-                observing[ref] = self.observed_ports(ref, mode)
-        targets = list(map(_TARGET, bits))
-        is_pin = list(map(_IS_PIN, bits))
+        per bit: a column of a large board has thousands of bits). `targets` and `is_pin`:
+        the bits' own, when the caller has them already."""
+        observing = self._observing(modes)
+        if targets is None or is_pin is None:
+            targets, is_pin = list(map(_TARGET, bits)), list(map(_IS_PIN, bits))
         pin_targets = list(compress(targets, is_pin))
         net_targets = list(compress(targets, map(not_, is_pin)))
         pins_seen: list[bool] = []
@@ -515,6 +516,18 @@ class Scope:
             return nets_seen
         pin_answers, net_answers = iter(pins_seen), iter(nets_seen)
         return [next(pin_answers) if pin else next(net_answers) for pin in is_pin]
+
+    def _observing(self, modes: Modes) -> dict[str, frozenset[str]]:
+        """The devices that capture their pins in these modes, with the ports they capture."""
+        key = tuple(modes.items())
+        observing = self._observing_in.get(key)
+        if observing is None:
+            observing = self._observing_in[key] = {}
+            for ref, mode in key:
+                entry = self.devices.get(ref)
+                if entry is not None and observes_pins(entry.device, mode):
+                    observing[ref] = self.observed_ports(ref, mode)
+        return observing
 
     def could_observe(self, bit: BitRef) -> tuple[str, ...]:
         """Devices that could capture `bit` under SAMPLE, whatever their mode now."""
@@ -540,7 +553,10 @@ _THIRD = itemgetter(2)
 
 def _keys(bits: Sequence[BitRef]) -> list[str]:
     """Each bit's `key` (its net, else the pin itself), for a whole column."""
-    return [target if net is None else net for target, net in zip(map(_TARGET, bits), map(_NET, bits))]
+    nets = list(map(_NET, bits))
+    if None not in nets:
+        return nets  # type: ignore[return-value]
+    return [target if net is None else net for target, net in zip(map(_TARGET, bits), nets)]
 
 
 _NET = attrgetter("net")
