@@ -11,7 +11,7 @@ import bisect
 import re
 from dataclasses import dataclass
 from functools import lru_cache
-from itertools import repeat
+from itertools import accumulate, repeat
 from operator import add, itemgetter, sub
 from pathlib import Path
 
@@ -42,8 +42,9 @@ _TERMINAL_WORDS = {
 }
 
 _CELL = re.compile(r"\S+")
-# In a MEMBER_LIST token, once its comments are blanked out: a member name or pin.
-_MEMBER = re.compile(r"[A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z0-9_]+(?:\([0-9]+\))?)?")
+# In a MEMBER_LIST token, once its comments are blanked out: a member name or pin (a split
+# by it gives what lies between the members and the members themselves, in turn).
+_MEMBER_SPLIT = re.compile(r"([A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z0-9_]+(?:\([0-9]+\))?)?)")
 _COMMENT = re.compile(r"#[^\r\n]*")
 _LINE_BREAK = re.compile(r"\n")
 _COMMENT_OR_STRING = re.compile(r'"(?:[^"\\\r\n]|\\.)*"?|#[^\r\n]*')
@@ -303,34 +304,33 @@ class _ToAst(Transformer):
         text = token.value
         if "#" in text:  # comments blanked out, so that every offset stays where it was
             text = _COMMENT.sub(_blanked, text)
-        matches = list(_MEMBER.finditer(text))
-        names = list(map(re.Match.group, matches))
-        offsets = list(map(re.Match.start, matches))
+        pieces = _MEMBER_SPLIT.split(text)  # what lies between members, then a member, ...
+        names = pieces[1::2]
         count = len(names)
-        if "\n" in text:
-            # A member after the k-th line break is on line token.line + k, and its column
-            # counts from that break; before the first break, from the token's own column.
-            breaks = [match.start() for match in _LINE_BREAK.finditer(text)]
-            before = list(map(bisect.bisect_left, repeat(breaks, count), offsets))
-            starts = [-token.column, *breaks]
-            lines: list[int] = list(map(add, before, repeat(token.line, count)))
-            columns = list(map(sub, offsets, map(starts.__getitem__, before)))
-        else:
-            lines = [token.line] * count
-            columns = list(map(add, offsets, repeat(token.column, count)))
+        offsets = list(accumulate(map(len, pieces)))[0:-1:2]  # where each member starts
+        # A member's line is the token's line plus the line breaks before it; its column
+        # counts from the last of them, or on the token's first line from the token's column.
+        last_breaks = list(map(text.rfind, repeat("\n", count), repeat(0, count), offsets))
+        breaks = [match.start() for match in _LINE_BREAK.finditer(text)]
+        line_of = dict(zip(breaks, range(token.line + 1, token.line + 1 + len(breaks))))
+        line_of[-1] = token.line
+        lines = list(map(line_of.__getitem__, last_breaks))
+        columns = list(map(sub, offsets, last_breaks))
+        for index in range(bisect.bisect_left(last_breaks, 0)):  # members on the first line
+            columns[index] += token.column - 1
         ends = list(map(add, columns, map(len, names)))
         spans = frozen_records(SourceSpan, count, repeat(self.file, count), lines, columns, lines, ends)
         members: list[ast.Signal]
-        dots = list(map(str.find, names, repeat(".", count)))
-        if max(dots, default=-1) < 0:  # plain names only
+        pins = text.count(".")  # a pin has one dot, a plain name none
+        if pins == 0:
             members = frozen_records(ast.NameSignal, count, names, spans)
-        elif min(dots) >= 0:  # pins only
+        elif pins == count:
             parts = list(map(str.partition, names, repeat(".", count)))
             members = frozen_records(ast.PinSignal, count, map(itemgetter(0), parts),
                                       map(itemgetter(2), parts), spans)
         else:
-            members = [ast.PinSignal(name[:dot], name[dot + 1:], span) if dot >= 0 else
-                       ast.NameSignal(name, span) for name, dot, span in zip(names, dots, spans)]
+            members = [ast.PinSignal(*name.split(".", 1), span) if "." in name else
+                       ast.NameSignal(name, span) for name, span in zip(names, spans)]
         return ast.GroupDecl(c[1].value, tuple(members), self._between(c[0], token), self._tok(c[1]))
 
     def default_mode(self, c: list) -> ast.DefaultModeDecl:

@@ -128,6 +128,8 @@ _NO_PORTS: frozenset[str] = frozenset()
 
 
 class _NoNet:
+    """What a name that is no net of the board stands for in `observed_by_any`: no pins."""
+
     pins: tuple[PinRef, ...] = ()
 
 
