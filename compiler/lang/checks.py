@@ -472,7 +472,7 @@ class _TestChecker:
         layout = tuple(id(item.column) for _, item in assigned)  # columns live in self.columns
         distinct = self.distinct.get(layout)
         if distinct is None:
-            keys = [key for _, item in assigned for key in item.column.keys]
+            keys = list(chain.from_iterable(item.column.keys for _, item in assigned))
             distinct = self.distinct[layout] = len(set(keys)) == len(keys)
         if distinct:
             return tuple(item for _, item in assigned)
