@@ -261,3 +261,39 @@ def test_listing_of_a_trst_reset_says_the_player_asserts_trst() -> None:
     program = dataclasses.replace(program, records=records)
     text = render_listing(program, lay_out_cycles(program), Path("/boards/demo/out"))
     assert "five clocks with TMS=1 to Test-Logic-Reset with TRST asserted by the player as well" in text
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 2**32), st.booleans())
+def test_listing_of_repeated_masks_equals_the_bit_by_bit_listing(seed: int, unicode_nets: bool) -> None:
+    # Scans whose mask repeats an earlier one's get their compared-bit lines by setting the
+    # expected 1s in that mask's prepared text; the listing must be the one picked bit by bit.
+    from handbuilt import dr_scan, ir_scan, make_program, reset_record
+    from scanloom.backend.records import ChainMap
+    from scanloom.backend.writers import listing
+
+    rng = random.Random(seed)
+    chain = random_chain(rng, devices=(1, 4), boundary=(1, 40))
+    if unicode_nets:  # names beyond ASCII move the byte offsets of the value digits
+        chain = ChainMap(tuple(dataclasses.replace(device, cells=tuple(
+            cell._replace(net=f"Ω{cell.net}") for cell in device.cells)) for device in chain.devices))
+    records = [reset_record(), ir_scan(chain, {d.ref: "EXTEST" for d in chain.devices})]
+    masks = [{d.ref: "".join(rng.choice("01X") for _ in range(d.boundary_length))
+              for d in chain.devices} for _ in range(2)]
+    for number in range(rng.randint(2, 7)):
+        mask = rng.choice(masks)
+        expected = {ref: "".join("X" if m == "X" else rng.choice("01") for m in pattern)
+                    for ref, pattern in mask.items()}
+        shifted = {d.ref: "0" * d.boundary_length for d in chain.devices}
+        records.append(dr_scan(chain, {d.ref: "BOUNDARY" for d in chain.devices}, shifted,
+                               expected, test="t", step=f"s{number}"))
+    program = make_program(chain, records)
+    cycles = lay_out_cycles(program)
+    fast = render_listing(program, cycles, Path("/boards/demo/out"))
+    original = listing._ChainLabels.filled_lines
+    try:
+        listing._ChainLabels.filled_lines = lambda self, segments, mask: None  # type: ignore[method-assign]
+        picked = render_listing(program, cycles, Path("/boards/demo/out"))
+    finally:
+        listing._ChainLabels.filled_lines = original  # type: ignore[method-assign]
+    assert fast == picked

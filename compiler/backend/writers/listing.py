@@ -16,7 +16,7 @@ from bitarray import bitarray
 
 from ..cycle_stream import CycleStream
 from ..hexbits import bits_to_hex
-from ..records import DR_SCAN, IDLE, IR_SCAN, RESET, CellMeaning, DeviceMap, ScanProgram, ShiftRecord
+from ..records import DR_SCAN, IDLE, IR_SCAN, RESET, CellMeaning, DeviceMap, ScanProgram, Segment, ShiftRecord
 from ..tap import UNKNOWN_STATE_CODE, TapState, next_state, state_code_name, state_from_name
 from .atomic import atomic_output
 from .json_writer import relative_posix
@@ -53,6 +53,36 @@ def _span(first: int, count: int) -> str:
     return f"cycles {first}-{first + count - 1}"
 
 
+_FILLED_KEPT = 4  # masks whose compared-bit lines are kept (about 100 bytes per compared bit)
+
+
+class _FilledLines:
+    """The compared-bit lines of one layout and mask as one UTF-8 text expecting 0 everywhere,
+    and the bit of each line's value digit ("0" and "1" differ in their lowest bit): a scan's
+    lines are that text with its expected 1s set, one scatter instead of a pick per bit."""
+
+    def __init__(self, layout_lines: list[str], compared: list[int]):
+        zeros = [layout_lines[2 * bit] for bit in compared]
+        encoded = [line.encode() for line in zeros]
+        self.text = b"\n".join(encoded)
+        self.compared = compared
+        self.count = len(compared)
+        digits: list[int] = []
+        start = 0
+        for line, bit in zip(encoded, compared):
+            # "      scan bit {bit}: expect 0  ...": an ASCII head, the digit after it
+            digits.append(8 * (start + len(f"      scan bit {bit}: expect ")) + 7)
+            start += len(line) + 1
+        self.digits = digits
+
+    def fill(self, tdo: bitarray) -> str:
+        """The lines for a scan expecting `tdo` (big-endian bits, like the mask)."""
+        text = bitarray(endian="big")
+        text.frombytes(self.text)
+        text[self.digits] = tdo[self.compared]
+        return text.tobytes().decode()
+
+
 class _ChainLabels:
     """What each device bit is called; a register's labels are built once, on first use."""
 
@@ -60,6 +90,9 @@ class _ChainLabels:
         self.devices = {device.ref: device for device in devices}
         self._labels: dict[tuple[str, str], list[str]] = {}
         self._lines: dict[tuple[str, str, int, int], list[str]] = {}
+        self._layouts: dict[tuple[Segment, ...], list[str] | None] = {}
+        self._masks_seen: set[tuple] = set()
+        self._filled: dict[tuple, _FilledLines] = {}
 
     def compared_lines(self, ref: str, register: str, offset: int, length: int) -> list[str]:
         """For a segment, the two possible lines of each bit, interleaved: bit b expecting 0 at
@@ -74,6 +107,42 @@ class _ChainLabels:
             lines[1::2] = [f"      scan bit {place}: expect 1  {name}" for place, name in zip(places, names)]
             self._lines[key] = lines
         return lines
+
+    def layout_lines(self, segments: tuple[Segment, ...]) -> list[str] | None:
+        """`compared_lines` of every bit of a record's segments in offset order, as one list;
+        None unless the segments tile the scan from bit 0 (as every scheduled scan's do)."""
+        if segments in self._layouts:
+            return self._layouts[segments]
+        lines: list[str] | None = []
+        at = 0
+        for segment in segments:
+            if segment.offset != at or segment.length <= 0:
+                lines = None
+                break
+            lines += self.compared_lines(segment.device, segment.register,  # type: ignore[operator]
+                                         segment.offset, segment.length)
+            at += segment.length
+        self._layouts[segments] = lines
+        return lines
+
+    def filled_lines(self, segments: tuple[Segment, ...], mask: bitarray) -> _FilledLines | None:
+        """The compared-bit lines of scans with this layout and mask, once a second scan has
+        shown that the mask repeats (the vectors of a test compare the same bits); None before,
+        or when the segments do not tile the scan."""
+        key = (segments, len(mask), mask.tobytes())
+        found = self._filled.get(key)
+        if found is not None:
+            return found
+        if key not in self._masks_seen:
+            self._masks_seen.add(key)
+            return None
+        lines = self.layout_lines(segments)
+        if lines is None:
+            return None
+        if len(self._filled) >= _FILLED_KEPT:
+            self._filled.clear()
+        found = self._filled[key] = _FilledLines(lines, list(mask.search(1)))
+        return found
 
     def labels(self, ref: str, register: str, length: int) -> list[str]:
         key = (ref, register)
@@ -154,19 +223,31 @@ def _record_lines(index: int, record: ShiftRecord, start: int, end: int, shift_s
         lines.append(line)
         if record.kind == DR_SCAN and intent is not None:
             lines += _wrapped("image ", intent, "      ")
-    compared = _compared_bits(record, labels)
-    if compared:
-        lines.append(f"    compared bits ({len(compared)}):")
-        lines += compared
+    count, compared = _compared_bits(record, labels)
+    if count:
+        lines.append(f"    compared bits ({count}):")
+        lines.append(compared)
     return lines
 
 
-def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
-    """Every compared bit's line, picked from the segment's prepared lines by a selector
-    (compared and expecting 0 at 2b, compared and expecting 1 at 2b+1), not formatted per bit."""
+def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> tuple[int, str]:
+    """How many bits the record compares, and their lines as one text.
+
+    The lines are picked from the segments' prepared lines by a selector (compared and
+    expecting 0 at 2b, compared and expecting 1 at 2b+1), not formatted per bit; when the
+    mask repeats an earlier scan's, they are that mask's lines with the expected 1s set.
+    """
     tdo, mask = bitarray(record.tdo, endian="big"), bitarray(record.mask, endian="big")
+    if not mask.any():
+        return 0, ""
+    segments = tuple(sorted(record.segments, key=lambda s: s.offset))
+    chain_length = max((s.offset + s.length for s in segments), default=0)
+    if chain_length == record.length:
+        filled = labels.filled_lines(segments, mask)
+        if filled is not None:
+            return filled.count, filled.fill(tdo)
     lines: list[str] = []
-    for segment in sorted(record.segments, key=lambda s: s.offset):
+    for segment in segments:
         # A raw chain scan shorter than the chain shows only the first registers' bits.
         start, stop = segment.offset, min(segment.offset + segment.length, record.length)
         if stop <= start:
@@ -178,11 +259,10 @@ def _compared_bits(record: ShiftRecord, labels: _ChainLabels) -> list[str]:
         prepared = labels.compared_lines(segment.device, segment.register, start, segment.length)
         lines.extend(compress(prepared, selector))  # (compress stops at the selector's end)
     # A raw chain scan longer than the chain: the bits past it are TDI bits passing through.
-    chain_length = max((s.offset + s.length for s in record.segments), default=0)
     for bit in mask.search(1, chain_length):
         lines.append(f"      scan bit {bit}: expect {tdo[bit]}  TDI bit {bit - chain_length} "
                      "through the whole chain")
-    return lines
+    return len(lines), "\n".join(lines)
 
 
 def listing_parts(program: ScanProgram, cycles: CycleStream, out_dir: Path) -> Iterator[str]:
