@@ -22,7 +22,7 @@ from collections import deque
 from dataclasses import dataclass, field, fields, is_dataclass
 from itertools import repeat
 from operator import attrgetter
-from typing import Any, Iterable, Iterator, Sequence, TypeVar, Union, overload
+from typing import Any, Iterable, Iterator, Self, Sequence, TypeVar, Union, overload
 
 from .diagnostics import SourceSpan
 
@@ -82,45 +82,65 @@ _Record = TypeVar("_Record", Drive, Expect)
 class _Columns(Sequence[_Record]):
     """Records of one kind held as columns, one entry per bit; immutable.
 
-    Equal to another holder or to a tuple of the same records (spans do not count, as for the
-    records). `records` makes the records once, for readers that want them one by one.
+    `_fields` names the holder's columns in the order of the record's fields, the span last
+    (None in `spans`: no bit has a span). Equal to another holder or to a tuple of the same
+    records (spans do not count, as for the records). `records` makes the records once, for
+    readers that want them one by one.
     """
 
     __slots__ = ("targets", "pins", "values", "spans", "_made")
     _record: type
+    _fields: tuple[str, ...]
 
     targets: tuple[str, ...]
     pins: tuple[bool, ...]
     values: str  # one character per bit
-    spans: tuple[SourceSpan | None, ...] | None  # None: no bit has a span
+    spans: tuple[SourceSpan | None, ...] | None
 
-    def _set(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
-             spans: Sequence[SourceSpan | None] | None) -> None:
-        values = values if isinstance(values, str) else "".join(values)
-        targets, pins = tuple(targets), tuple(pins)
-        if spans is not None:
-            spans = tuple(spans)
-        if len(pins) != len(targets) or len(values) != len(targets) or \
-                (spans is not None and len(spans) != len(targets)):
+    def __init__(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
+                 *more: Any):
+        """The columns of `_fields` in order, then the spans (optional)."""
+        extra = len(self._fields) - 3
+        if not extra <= len(more) <= extra + 1:
+            raise TypeError(f"{type(self).__name__} takes the columns {', '.join(self._fields)} "
+                            "and the spans")
+        columns = [tuple(targets), tuple(pins), values if isinstance(values, str) else "".join(values)]
+        columns += [tuple(column) for column in more[:extra]]
+        spans = more[extra] if len(more) > extra else None
+        spans = tuple(spans) if spans is not None else None
+        if any(len(column) != len(columns[0]) for column in columns) or \
+                (spans is not None and len(spans) != len(columns[0])):
             raise ValueError(f"{type(self).__name__}: columns of different lengths")
-        for name, value in (("targets", targets), ("pins", pins), ("values", values),
-                            ("spans", spans), ("_made", None)):
-            object.__setattr__(self, name, value)
+        for name, column in zip(self._fields, columns):
+            object.__setattr__(self, name, column)
+        object.__setattr__(self, "spans", spans)
+        object.__setattr__(self, "_made", None)
+
+    @classmethod
+    def of(cls, records: Iterable[_Record]) -> Self:
+        """The columns of these records (the holder itself when it is one)."""
+        if isinstance(records, cls):
+            return records
+        made = tuple(records)
+        names = [spec.name for spec in fields(cls._record)][:len(cls._fields)]
+        spans = tuple(map(_SPAN, made))
+        return cls(*(tuple(map(attrgetter(name), made)) for name in names),
+                   spans if any(span is not None for span in spans) else None)
 
     def __setattr__(self, name: str, value: Any) -> None:
         raise AttributeError(f"{type(self).__name__} is immutable")
 
-    def _columns(self) -> tuple[Iterable[Any], ...]:
-        raise NotImplementedError  # each holder lists its record's fields
-
     def _key(self) -> tuple:
-        raise NotImplementedError
+        return tuple(getattr(self, name) for name in self._fields)
+
+    def _columns(self, spans_for_all: Iterable[SourceSpan | None]) -> tuple[Any, ...]:
+        return (*self._key(), self.spans if self.spans is not None else spans_for_all)
 
     @property
     def records(self) -> tuple[_Record, ...]:
         made = self._made
         if made is None:
-            made = _records(self._record, self._columns(), len(self.targets))
+            made = _records(self._record, self._columns(repeat(None)), len(self.targets))
             object.__setattr__(self, "_made", made)
         return made
 
@@ -142,10 +162,7 @@ class _Columns(Sequence[_Record]):
     def __getitem__(self, index: int | slice) -> _Record | tuple[_Record, ...]:
         if isinstance(index, slice) or self._made is not None:
             return self.records[index]
-        return self._record(*(column[index] for column in self._columns_for_one()))
-
-    def _columns_for_one(self) -> tuple[Sequence[Any], ...]:
-        raise NotImplementedError
+        return self._record(*(column[index] for column in self._columns((None,) * len(self))))
 
     def __eq__(self, other: object) -> bool:
         if type(other) is type(self):
@@ -157,91 +174,37 @@ class _Columns(Sequence[_Record]):
     def __hash__(self) -> int:
         return hash(self._key())
 
+    def __reduce__(self) -> tuple:
+        return (type(self), (*self._key(), self.spans))
+
     def __repr__(self) -> str:
         return f"{type(self).__name__}({self.records!r})"
 
 
 class DriveColumns(_Columns[Drive]):
-    """A step's drive state as columns: target, is_pin, value and driver of each bit."""
+    """A step's drive state as columns: target, is_pin, value and driver of each bit.
+
+    DriveColumns(targets, pins, values, drivers, spans=None)
+    """
 
     __slots__ = ("drivers",)
     _record = Drive
+    _fields = ("targets", "pins", "values", "drivers")
     drivers: tuple[str | None, ...]
-
-    def __init__(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
-                 drivers: Sequence[str | None], spans: Sequence[SourceSpan | None] | None = None):
-        self._set(targets, pins, values, spans)
-        drivers = tuple(drivers)
-        if len(drivers) != len(self.targets):
-            raise ValueError("DriveColumns: columns of different lengths")
-        object.__setattr__(self, "drivers", drivers)
-
-    @classmethod
-    def of(cls, drives: Iterable[Drive]) -> "DriveColumns":
-        """The columns of these records (the holder itself when it is one)."""
-        if isinstance(drives, DriveColumns):
-            return drives
-        records = tuple(drives)
-        return cls(tuple(map(_TARGET, records)), tuple(map(_IS_PIN, records)),
-                   "".join(map(_VALUE, records)), tuple(map(_DRIVER, records)),
-                   _spans_of(records))
-
-    def _columns(self) -> tuple[Iterable[Any], ...]:
-        spans = self.spans if self.spans is not None else repeat(None)
-        return (self.targets, self.pins, self.values, self.drivers, spans)
-
-    def _columns_for_one(self) -> tuple[Sequence[Any], ...]:
-        spans = self.spans if self.spans is not None else (None,) * len(self.targets)
-        return (self.targets, self.pins, self.values, self.drivers, spans)
-
-    def _key(self) -> tuple:
-        return (self.targets, self.pins, self.values, self.drivers)
-
-    def __reduce__(self) -> tuple:
-        return (DriveColumns, (self.targets, self.pins, self.values, self.drivers, self.spans))
 
 
 class ExpectColumns(_Columns[Expect]):
-    """A step's expectations as columns: target, is_pin and value of each bit."""
+    """A step's expectations as columns: target, is_pin and value of each bit.
+
+    ExpectColumns(targets, pins, values, spans=None)
+    """
 
     __slots__ = ()
     _record = Expect
-
-    def __init__(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
-                 spans: Sequence[SourceSpan | None] | None = None):
-        self._set(targets, pins, values, spans)
-
-    @classmethod
-    def of(cls, expects: Iterable[Expect]) -> "ExpectColumns":
-        """The columns of these records (the holder itself when it is one)."""
-        if isinstance(expects, ExpectColumns):
-            return expects
-        records = tuple(expects)
-        return cls(tuple(map(_TARGET, records)), tuple(map(_IS_PIN, records)),
-                   "".join(map(_VALUE, records)), _spans_of(records))
-
-    def _columns(self) -> tuple[Iterable[Any], ...]:
-        spans = self.spans if self.spans is not None else repeat(None)
-        return (self.targets, self.pins, self.values, spans)
-
-    def _columns_for_one(self) -> tuple[Sequence[Any], ...]:
-        spans = self.spans if self.spans is not None else (None,) * len(self.targets)
-        return (self.targets, self.pins, self.values, spans)
-
-    def _key(self) -> tuple:
-        return (self.targets, self.pins, self.values)
-
-    def __reduce__(self) -> tuple:
-        return (ExpectColumns, (self.targets, self.pins, self.values, self.spans))
+    _fields = ("targets", "pins", "values")
 
 
-_TARGET, _IS_PIN, _VALUE = attrgetter("target"), attrgetter("is_pin"), attrgetter("value")
-_DRIVER, _SPAN = attrgetter("driver"), attrgetter("span")
-
-
-def _spans_of(records: Sequence[Drive | Expect]) -> tuple[SourceSpan | None, ...] | None:
-    spans = tuple(map(_SPAN, records))
-    return spans if any(span is not None for span in spans) else None
+_SPAN = attrgetter("span")
 
 
 @dataclass(frozen=True, slots=True)

@@ -85,6 +85,8 @@ def test_columns_cannot_be_changed_and_must_be_as_long_as_each_other() -> None:
         DriveColumns(("N0",), (False,), "1", ("U1.Q(0)", "U1.P"))
     with pytest.raises(ValueError):  # one character per bit
         ExpectColumns.of([Expect("N0", False, "01")])
+    with pytest.raises(TypeError):  # a drive state needs its drivers
+        DriveColumns(("N0",), (False,), "1")
 
 
 def test_a_step_keeps_records_given_to_it_as_columns() -> None:
