@@ -16,7 +16,7 @@ from bitarray import bitarray
 
 from ..cycle_stream import CycleStream
 from ..hexbits import bits_to_hex
-from ..records import DR_SCAN, IDLE, IR_SCAN, RESET, CellMeaning, DeviceMap, ScanProgram, Segment, ShiftRecord
+from ..records import DR_SCAN, IDLE, IR_SCAN, RESET, DeviceMap, ScanProgram, Segment, ShiftRecord
 from ..tap import UNKNOWN_STATE_CODE, TapState, next_state, state_code_name, state_from_name
 from .atomic import atomic_output
 from .json_writer import relative_posix
@@ -54,6 +54,7 @@ def _span(first: int, count: int) -> str:
 
 
 _FILLED_KEPT = 4  # masks whose compared-bit lines are kept (about 100 bytes per compared bit)
+_MASKS_REMEMBERED = 64  # masks seen once, waiting to be seen again
 
 
 class _FilledLines:
@@ -134,6 +135,8 @@ class _ChainLabels:
         if found is not None:
             return found
         if key not in self._masks_seen:
+            if len(self._masks_seen) >= _MASKS_REMEMBERED:
+                self._masks_seen.clear()
             self._masks_seen.add(key)
             return None
         lines = self.layout_lines(segments)
