@@ -43,6 +43,7 @@ from .fault_verdicts import (
     DETECTED, NOT_DETECTED, POSSIBLY_DETECTED, ClassCoverage, Detection, FaultVerdict, GradingReport,
     verdict_from_simulation,
 )
+from .node_faults import NodeFaults
 from .scan_states import ScanStates, column, scan_states
 
 __all__ = [
@@ -89,7 +90,9 @@ def _rails(value: int, known: int, full: int) -> tuple[int, int]:
 class FaultGrader:
     """Grades faults of one program on one board; the fault-free work is done once."""
 
-    def __init__(self, electrical: ElectricalBoard, program: ScanProgram, cycles: CycleStream) -> None:
+    def __init__(self, electrical: ElectricalBoard, program: ScanProgram, cycles: CycleStream,
+                 *, fast: bool = True) -> None:
+        """`fast=False` grades every fault the general way (the reference for the fast path)."""
         check_chain(electrical, program)
         self.electrical = electrical
         self.program = program
@@ -117,6 +120,8 @@ class FaultGrader:
         self._drives: dict[PinRef, PinDrive] = {**self.good_logic, **self._pin_drive}
         self._successors: dict[int, set[int]] | None = None
         self._good_simulation: SimulationResult | None = None
+        self._detections: dict[tuple[int, int], Detection] = {}
+        self._node_faults = NodeFaults(self) if fast else None
         self.simulated = 0
 
     # -- the fault-free board ------------------------------------------------------------------
@@ -193,6 +198,10 @@ class FaultGrader:
 
     # -- one fault -----------------------------------------------------------------------------
     def grade(self, fault: Fault) -> FaultVerdict:
+        if self._node_faults is not None:
+            verdict = self._node_faults.grade(fault)
+            if verdict is not None:
+                return verdict
         effect = fault_effect(self.electrical, fault)
         if effect.note is not None:
             return FaultVerdict(fault, NOT_DETECTED, reason=effect.note)
@@ -420,7 +429,7 @@ class FaultGrader:
             return FaultVerdict(fault, DETECTED, self._detection(*first_detect))
         if first_possible is not None:
             return FaultVerdict(fault, POSSIBLY_DETECTED, self._detection(*first_possible))
-        return FaultVerdict(fault, NOT_DETECTED, reason=self._reason(effect, seen_observed))
+        return FaultVerdict(fault, NOT_DETECTED, reason=self._reason(fault, seen_observed))
 
     def _earlier(self, best: tuple[int, int] | None, mask: int, obs: _Observer) -> tuple[int, int]:
         state = (mask & -mask).bit_length() - 1
@@ -428,13 +437,19 @@ class FaultGrader:
         return candidate if best is None or candidate < best else best
 
     def _detection(self, state: int, scan_bit: int) -> Detection:
-        event = self.states.capture_of_state[state]
-        cycle = event.shift_start + scan_bit
-        return Detection(event.record, scan_bit, cycle, self.index.scan_meaning(event.record, scan_bit, cycle))
+        """The bit as a detection; kept per bit, since many faults first show on one bit."""
+        key = (state, scan_bit)
+        found = self._detections.get(key)
+        if found is None:
+            event = self.states.capture_of_state[state]
+            cycle = event.shift_start + scan_bit
+            found = Detection(event.record, scan_bit, cycle,
+                              self.index.scan_meaning(event.record, scan_bit, cycle))
+            self._detections[key] = found
+        return found
 
     # -- reasons -------------------------------------------------------------------------------
-    def _reason(self, effect: FaultEffect, observed: int) -> str:
-        fault = effect.fault
+    def _reason(self, fault: Fault, observed: int) -> str:
         target = str(fault.pin) if fault.kind == OPEN_PIN and fault.pin is not None else " and ".join(fault.nets)
         if not observed:
             return f"no compared bit captures {target}"

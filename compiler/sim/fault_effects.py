@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 from ..models.board import PinRef
 from .electrical import ElectricalBoard, ElectricalNode
-from .faults import OPEN_NET, OPEN_PIN, SHORT, STUCK_AT, TAP_SHORT, TAP_SIGNALS, Fault, tap_port
+from .faults import OPEN_NET, OPEN_PIN, SHORT, STUCK_AT, TAP_SHORT, Fault, tap_port, tap_signal_of_port
 from .resolve import COMBINE_AND, COMBINE_OR, COMBINE_WIRE, Group
 
 __all__ = [
@@ -94,10 +94,7 @@ def _tap_signal(electrical: ElectricalBoard, pin: PinRef) -> str | None:
     entry = electrical.board.devices.get(pin.ref)
     if entry is None:
         return None
-    for signal in TAP_SIGNALS:
-        if tap_port(entry.device, signal) == pin.port:
-            return signal
-    return None
+    return tap_signal_of_port(entry.device, pin.port)
 
 
 def _line_of(electrical: ElectricalBoard, pin: PinRef) -> TapLine | None:

@@ -46,6 +46,7 @@ __all__ = [
     "fault_universe",
     "adjacent_pin_pairs",
     "tap_port",
+    "tap_signal_of_port",
 ]
 
 OPEN_PIN = "open-pin"
@@ -94,15 +95,28 @@ def tap_port(device: DeviceModel, signal: str) -> str | None:
     return {"TDI": tap.tdi, "TDO": tap.tdo, "TMS": tap.tms, "TCK": tap.tck, "TRST": tap.trst}.get(signal)
 
 
+def tap_signal_of_port(device: DeviceModel, port: str) -> str | None:
+    """The TAP signal (TDI, TDO, TMS, TCK or TRST, first in that order) that `port` carries on
+    `device`, or None; a table per device model, since every pin of a board's universe asks."""
+    return _tap_signals(device).get(port)
+
+
+@per_model
+def _tap_signals(device: DeviceModel) -> dict[str, str]:
+    signals: dict[str, str] = {}
+    for signal in TAP_SIGNALS:
+        port = tap_port(device, signal)
+        if port is not None:
+            signals.setdefault(port, signal)
+    return signals
+
+
 def _tap_signal_of(electrical: ElectricalBoard, pin: PinRef) -> str | None:
     """TDI, TDO, TMS, TCK or TRST when `pin` is a TAP pin of a chain device."""
     entry = electrical.board.devices.get(pin.ref)
     if entry is None:
         return None
-    for signal in TAP_SIGNALS:
-        if tap_port(entry.device, signal) == pin.port:
-            return signal
-    return None
+    return tap_signal_of_port(entry.device, pin.port)
 
 
 class _SpecReader:
