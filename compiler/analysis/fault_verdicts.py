@@ -10,6 +10,7 @@ reproduces.
 from __future__ import annotations
 
 import json
+from collections import Counter
 from dataclasses import dataclass
 
 from bitarray import bitarray
@@ -89,13 +90,16 @@ class GradingReport:
     simulated: int = 0  # faults the cycle-level virtual board had to play
 
     def coverage(self) -> dict[str, ClassCoverage]:
+        """Per fault class (those with faults), then "all": counted in one pass over the verdicts."""
+        tally = Counter((v.fault.fault_class, v.verdict) for v in self.verdicts)
         out: dict[str, ClassCoverage] = {}
         for name in FAULT_CLASSES + ("all",):
-            chosen = [v for v in self.verdicts if name == "all" or v.fault.fault_class == name]
-            if not chosen and name != "all":
+            counts = tally.items() if name == "all" else [(key, n) for key, n in tally.items() if key[0] == name]
+            total = sum(n for _, n in counts)
+            if not total and name != "all":
                 continue
-            out[name] = ClassCoverage(name, len(chosen), sum(v.verdict == DETECTED for v in chosen),
-                                      sum(v.verdict == POSSIBLY_DETECTED for v in chosen))
+            out[name] = ClassCoverage(name, total, sum(n for key, n in counts if key[1] == DETECTED),
+                                      sum(n for key, n in counts if key[1] == POSSIBLY_DETECTED))
         return out
 
     def as_data(self) -> dict[str, object]:
@@ -110,23 +114,26 @@ class GradingReport:
         writes compact JSON in C but indented JSON in Python, so the verdicts are encoded
         compactly and only the document around them is indented.
         """
-        data = self.as_data()
-        faults = data.pop("faults")
-        encode = json.JSONEncoder(separators=(", ", ": ")).encode
+        data = {"coverage": {name: c.as_data() for name, c in self.coverage().items()},
+                "excluded_bits": self.excluded_bits}
         rest = json.dumps(data, indent=2)[1:].lstrip("\n")  # its keys, indented, and the "}"
-        if not faults:
+        if not self.verdicts:
             return '{\n  "faults": [],\n' + rest
-        body = ",\n".join("    " + encode(item) for item in faults)  # type: ignore[union-attr]
+        body = ",\n".join(_VerdictLines().lines(self.verdicts))
         return '{\n  "faults": [\n' + body + "\n  ],\n" + rest
 
     def render(self, *, details: bool = True) -> str:
         lines: list[str] = []
         if details:
             width = max((len(v.fault.spec) for v in self.verdicts), default=10)
+            described: dict[int, str] = {}  # per detection: faults share their first bits
             for v in self.verdicts:
                 line = f"{v.fault.spec:<{width}}  {v.verdict}"
                 if v.first is not None:
-                    line += f"  first: {v.first.meaning.describe()}"
+                    text = described.get(id(v.first))
+                    if text is None:
+                        text = described[id(v.first)] = v.first.meaning.describe()
+                    line += f"  first: {text}"
                 if v.reason:
                     line += f"  ({v.reason})"
                 lines.append(line)
@@ -140,6 +147,41 @@ class GradingReport:
             lines.append(f"note: {self.excluded_bits} compared bits fail on the fault-free board and "
                          "were left out of grading")
         return "\n".join(lines) + "\n"
+
+
+class _VerdictLines:
+    """Each verdict's `as_data()` as one line of compact JSON, exactly as the standard library's
+    encoder writes it (separators ", " and ": ", ASCII only), put together from pieces encoded
+    once: a universe's faults share their classes, verdicts, reasons and first bits."""
+
+    def __init__(self) -> None:
+        self.encode = json.JSONEncoder(separators=(", ", ": ")).encode
+        self.strings: dict[str, str] = {}
+        self.firsts: dict[int, str] = {}  # id of a Detection -> its meaning, encoded
+
+    def string(self, text: str) -> str:
+        found = self.strings.get(text)
+        if found is None:
+            found = self.strings[text] = self.encode(text)
+        return found
+
+    def lines(self, verdicts: tuple[FaultVerdict, ...]) -> list[str]:
+        encode, string, firsts = self.encode, self.string, self.firsts
+        lines = []
+        for v in verdicts:
+            fault = v.fault
+            line = ('    {"fault": ' + encode(fault.spec) + ', "class": ' + string(fault.fault_class)
+                    + ', "verdict": ' + string(v.verdict))
+            first = v.first
+            if first is not None:
+                meaning = firsts.get(id(first))
+                if meaning is None:
+                    meaning = firsts[id(first)] = encode(first.meaning.as_data())
+                line += ', "first": ' + meaning
+            if v.reason is not None:
+                line += ', "reason": ' + string(v.reason)
+            lines.append(line + "}")
+        return lines
 
 
 def verdict_from_simulation(fault: Fault, result: SimulationResult, gradable: bitarray,
