@@ -16,7 +16,7 @@ from bitarray import bitarray
 
 from ..backend.cycle_stream import CycleStream
 from ..backend.images import from_msb_string
-from ..backend.records import DR_SCAN, IR_SCAN, RESET, ScanProgram
+from ..backend.records import DR_SCAN, IR_SCAN, RESET, ChainMap, ScanProgram
 from ..models.board import Board, PinRef
 from ..models.connectivity import driver_cells
 from ..models.device import DeviceModel
@@ -63,17 +63,17 @@ class _PairTable:
     is then a few bitarray operations, for the hundred thousand neighbour pairs of a large
     board's interconnect test."""
 
-    def __init__(self, board: Board):
+    def __init__(self, board: Board, chain: ChainMap):
         self.refs = [entry.ref for entry in board.chain]
         self.lengths = [entry.device.boundary_length for entry in board.chain]
         self.sentinel = sum(self.lengths)  # a constant 1 appended to the image: the "control"
         # of a two-state output
+        # Each output port's net, from the chain map the records carry (every cell's port and
+        # net; a pin is on one net at most, the board loader sees to that)
         net_of_port: dict[str, dict[str, str]] = {ref: {} for ref in self.refs}
-        for net in board.nets.values():
-            for pin in net.pins:
-                ports = net_of_port.get(pin.ref)
-                if ports is not None:
-                    ports[pin.port] = net.name  # as Board.net_of_pin
+        for device in chain.devices:
+            net_of_port[device.ref] = {cell.port: cell.net for cell in device.cells
+                                       if cell.port and cell.net}
         self.ports: list[tuple[str, str]] = []
         self.ranges: dict[str, tuple[int, int]] = {}
         sides: tuple[list[_Cells], list[_Cells]] = ([], [])
@@ -151,7 +151,7 @@ def fight_windows(scan: ScanProgram, cycles: CycleStream, board: Board, tck_hz: 
         seconds = (end - update_cycle[index]) / tck_hz
         if seconds <= limit_s:
             continue
-        table = table or _PairTable(board)
+        table = table or _PairTable(board, scan.chain)
         if not len(table):
             return []
         driving = {ref for ref, name in instruction.items() if name.upper() in _DRIVING}
