@@ -18,12 +18,12 @@ columns; iterating gives the records.
 from __future__ import annotations
 
 import json
-from collections import deque
 from dataclasses import dataclass, field, fields, is_dataclass
 from itertools import repeat
 from operator import attrgetter
 from typing import Any, Iterable, Iterator, Self, Sequence, TypeVar, Union, overload
 
+from .bulk_records import frozen_records
 from .diagnostics import SourceSpan
 
 __all__ = [
@@ -43,8 +43,6 @@ __all__ = [
     "Override",
     "dump_ir",
     "ir_to_data",
-    "drives_of",
-    "expects_of",
     "COMPUTED",
 ]
 
@@ -140,7 +138,7 @@ class _Columns(Sequence[_Record]):
     def records(self) -> tuple[_Record, ...]:
         made = self._made
         if made is None:
-            made = _records(self._record, self._columns(repeat(None)), len(self.targets))
+            made = tuple(frozen_records(self._record, len(self), *self._columns(repeat(None))))
             object.__setattr__(self, "_made", made)
         return made
 
@@ -334,31 +332,6 @@ class Program:
     # Where header statements were written ("board", "tck", "fight limit", ...), for checks
     # that report on them.
     header_spans: dict[str, SourceSpan] = field(default_factory=dict, compare=False)
-
-
-def _records(cls: type, columns: Sequence[Iterable[Any]], count: int) -> tuple[Any, ...]:
-    """`count` records of a frozen slots dataclass, made field by field from its columns.
-
-    The same records as calling the class once per record. A frozen dataclass's __init__ sets
-    each field through object.__setattr__, which costs more than all else in lowering a large
-    step; here each field's slot is filled over the whole column at once.
-    """
-    records = tuple(map(object.__new__, repeat(cls, count)))
-    for spec, column in zip(fields(cls), columns):
-        deque(map(cls.__dict__[spec.name].__set__, records, column), maxlen=0)
-    return records
-
-
-def drives_of(targets: Sequence[str], pins: Sequence[bool], values: Sequence[str],
-              drivers: Sequence[str | None], span: SourceSpan | None) -> tuple[Drive, ...]:
-    """Drive(targets[i], pins[i], values[i], drivers[i], span) for every i, in order."""
-    return _records(Drive, (targets, pins, values, drivers, repeat(span)), len(targets))
-
-
-def expects_of(targets: Sequence[str], pins: Sequence[bool], values: Sequence[str],
-               span: SourceSpan | None) -> tuple[Expect, ...]:
-    """Expect(targets[i], pins[i], values[i], span) for every i, in order."""
-    return _records(Expect, (targets, pins, values, repeat(span)), len(targets))
 
 
 def ir_to_data(node: Any, *, spans: bool = True) -> Any:

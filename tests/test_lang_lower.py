@@ -5,20 +5,16 @@ The IR contract is the docstrings of scanloom/ir.py; golden dumps of every examp
 
 from __future__ import annotations
 
-import dataclasses
 import json
 import os
 from pathlib import Path
 
 import pytest
-from hypothesis import given
-from hypothesis import strategies as st
 from lang_boards import U1_IDCODE, U2_IDCODE, run
 
 from scanloom.diagnostics import Diagnostics
-from scanloom.diagnostics import SourceSpan
 from scanloom.ir import (
-    COMPUTED, Drive, Expect, Override, RegisterRead, RegisterWrite, Step, Wait, drives_of, expects_of,
+    COMPUTED, Drive, Expect, Override, RegisterRead, RegisterWrite, Step, Wait,
 )
 from scanloom.lang.frontend import dump_program, load_program
 
@@ -234,24 +230,3 @@ def test_register_example_reads_idcodes_with_x_bits_and_a_user_register():
     assert writes[0].register == "CFGREG" and writes[0].bits == "10100101"
 
 
-@given(st.lists(st.tuples(st.text(min_size=1, max_size=5), st.booleans(), st.sampled_from("01ZX"),
-                          st.one_of(st.none(), st.text(min_size=1, max_size=5))), max_size=20),
-       st.one_of(st.none(), st.builds(SourceSpan, st.just("t.loom"), st.integers(1, 99), st.integers(1, 99))))
-def test_records_made_column_by_column_equal_records_made_one_by_one(rows, span) -> None:
-    # drives_of / expects_of fill the slots of whole columns; they must give exactly what the
-    # dataclass constructor gives: fields, equality, hashing, text, and still frozen records.
-    targets = [r[0] for r in rows]
-    pins = [r[1] for r in rows]
-    values = "".join(r[2] for r in rows)
-    drivers = [r[3] for r in rows]
-    made = drives_of(targets, pins, values, drivers, span)
-    one_by_one = tuple(Drive(t, p, v, d, span) for t, p, v, d in zip(targets, pins, values, drivers))
-    assert made == one_by_one
-    assert [repr(d) for d in made] == [repr(d) for d in one_by_one]
-    assert [hash(d) for d in made] == [hash(d) for d in one_by_one]
-    assert all(d.span is span for d in made)
-    expects = expects_of(targets, pins, values, span)
-    assert expects == tuple(Expect(t, p, v, span) for t, p, v in zip(targets, pins, values))
-    for record in made[:1] + expects[:1]:
-        with pytest.raises(dataclasses.FrozenInstanceError):
-            record.value = "1"  # type: ignore[misc]

@@ -22,7 +22,7 @@ from lark.exceptions import (
 
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, read_source
 from . import ast
-from .bulk_records import frozen_records
+from ..bulk_records import frozen_records
 from ..collector import collector_paused
 from ..grammar_support import expected_words, strict_mode_available
 
@@ -298,7 +298,7 @@ class _ToAst(Transformer):
 
         Large boards declare groups of thousands of members, so the split works on whole
         columns (names, offsets, lines, columns) with builtins, and the members and their
-        spans are made column by column (`bulk_records.frozen_records`).
+        spans are made column by column (`scanloom.bulk_records.frozen_records`).
         """
         token: Token = c[3]
         text = token.value

@@ -19,7 +19,7 @@ from ..models.cells import PIN, instruction_class, resolve_capture
 from ..models.device import DRIVER_FUNCTIONS, RECEIVER_FUNCTIONS, DeviceModel
 from ..models.model_memo import per_model
 from . import ast
-from .bulk_records import frozen_records
+from ..bulk_records import frozen_records
 
 __all__ = ["BitRef", "Scope", "drives_pins", "drives_core", "observes_pins", "CORE_INPUT_FUNCTIONS"]
 

@@ -16,7 +16,7 @@ from hypothesis import strategies as st
 
 from scanloom.diagnostics import SourceSpan
 from scanloom.lang import ast
-from scanloom.lang.bulk_records import frozen_records
+from scanloom.bulk_records import frozen_records
 from scanloom.lang.resolve import BitRef
 
 _FIELDS = ("file", "line", "column", "end_line", "end_column")

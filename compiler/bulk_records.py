@@ -1,7 +1,9 @@
-"""Frozen records made many at a time: the members of large groups and their resolved bits.
+"""Frozen records made many at a time: the members of large groups, their resolved bits, the
+IR's drives and expectations.
 
 A board of tens of thousands of nets gives programs with groups of thousands of members, and
-each member becomes a few small frozen slots records (its span, its signal, its resolved bit).
+each member becomes a few small frozen slots records (its span, its signal, its resolved bit);
+a step of such a program drives and expects as many bits.
 A dataclass's generated `__init__` stores one field at a time in Python; `frozen_records`
 stores a whole column of values through the field's slot descriptor with builtins instead,
 which makes the same records in about half the time.
