@@ -114,3 +114,44 @@ def test_merged_cells_capture_as_their_input_side_entry() -> None:
                                        (1, "BC_1", "*", "CONTROL", "0")], boundary_length=2)
     (cell,) = capture_cells(device, "P")
     assert (cell.number, cell.function) == (0, "INPUT")
+
+
+def _nodes_by_their_definition(electrical) -> list[tuple]:  # type: ignore[no-untyped-def]
+    """Each net's node read back from the board: the pins of all its nets in board order, the
+    pulls of those nets, TAP if any net carries a TAP signal (the module's documentation)."""
+    board = electrical.board
+    found = []
+    for net in board.nets:
+        node = electrical.nodes[electrical.node_of_net[net]]
+        found.append((node.name, node.nets, node.pins, node.pulls, node.tap))
+        assert node.name == node.nets[0] and net in node.nets
+        assert node.pins == tuple(pin for name in node.nets for pin in board.nets[name].pins)
+        assert node.pulls == tuple(board.pulls[name] for name in node.nets if name in board.pulls)
+        assert node.tap is any(board.nets[name].tap for name in node.nets)
+        assert all(electrical.node_of_pin[pin] == node.index for pin in node.pins)
+    return found
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_nodes_drivers_and_receivers_are_their_definition(demo, seed: int) -> None:  # type: ignore[no-untyped-def]
+    from random_boards import random_board
+
+    for electrical in (demo, build_electrical(random_board(seed), Diagnostics())):
+        _nodes_by_their_definition(electrical)
+        for entry in electrical.board.chain:
+            for port in entry.device.cells_by_port:
+                pin = PinRef(entry.ref, port)
+                outputs = [c for c in entry.device.cells_of(port) if c.function in ("OUTPUT2", "OUTPUT3", "BIDIR")]
+                driver = electrical.drivers.get(pin)
+                assert (driver is not None) == bool(outputs)
+                if driver is not None:
+                    first = outputs[0]
+                    assert (driver.device, driver.cell, driver.function) == (entry.position, first.number,
+                                                                            first.function)
+                    assert driver.control == (first.control_cell if first.disable_value is not None else None)
+                cells = capture_cells(entry.device, port)
+                assert (pin in electrical.receivers) == bool(cells)
+                if cells:
+                    assert electrical.receivers[pin].cells == cells
+                if driver is not None or cells:
+                    assert electrical.node_of(pin).pins.count(pin) >= 1

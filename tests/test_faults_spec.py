@@ -163,6 +163,54 @@ def test_demo_universe(demo) -> None:  # type: ignore[no-untyped-def]
     assert {f.kind for f in only} == {OPEN_PIN}
 
 
+def _universe_by_its_definition(electrical) -> list[tuple]:  # type: ignore[no-untyped-def]
+    """The universe as the module's documentation states it, written out plainly: every
+    receiver pin on a net open; every net stuck-at-0 and stuck-at-1; for every pair of
+    adjacent package pins (chain order, then pin-map order) a wired-AND short between their
+    two different nets (board order, once per pair, never two TAP nets), or a short of the
+    one net onto the TAP signal of the other pin (once per net, device and signal)."""
+    board = electrical.board
+    faults = [(OPEN_PIN, f"open:{pin}", (net.name,), pin, None, net.tap) for net in board.nets.values()
+              for pin in net.pins if pin in electrical.receivers or pin in electrical.logic_receivers]
+    faults += [(STUCK_AT, f"stuck-at-{value}:{name}", (name,), None, value, net.tap)
+               for name, net in board.nets.items() for value in "01"]
+    position = list(board.nets).index
+    seen: set = set()
+    for entry in board.chain:
+        tap = entry.device.tap
+        signal_of = {}
+        for signal in ("TRST", "TCK", "TMS", "TDO", "TDI"):  # the first in TDI..TRST order wins
+            if getattr(tap, signal.lower()):
+                signal_of[getattr(tap, signal.lower())] = signal
+        for a, b in adjacent_pin_pairs(entry.device):
+            pins = PinRef(entry.ref, a), PinRef(entry.ref, b)
+            nets = [electrical.net_of_pin.get(pin) for pin in pins]
+            if None not in nets:
+                pair = tuple(sorted(nets, key=position))
+                if nets[0] != nets[1] and pair not in seen and not all(board.nets[n].tap for n in pair):
+                    seen.add(pair)
+                    faults.append((SHORT, f"short:{pair[0]},{pair[1]}", pair, None, None,
+                                   any(board.nets[n].tap for n in pair)))
+                seen.add(pair)
+                continue
+            for net, pin in ((nets[0], pins[1]), (nets[1], pins[0])):
+                signal = signal_of.get(pin.port)
+                if net is not None and signal is not None and (net, entry.ref, signal) not in seen:
+                    seen.add((net, entry.ref, signal))
+                    faults.append((TAP_SHORT, f"short:{net},{entry.ref}.{signal}", (net,), pin, None, True))
+    return faults
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_the_universe_is_its_definition(demo, seed: int) -> None:  # type: ignore[no-untyped-def]
+    from random_boards import random_board
+
+    for electrical in (demo, build_electrical(random_board(seed), Diagnostics())):
+        made = [(f.kind, f.spec, f.nets, f.pin, f.value, f.tap) for f in fault_universe(electrical)]
+        assert made == _universe_by_its_definition(electrical)
+        assert all(f.mode == "and" and f.dominant is None for f in fault_universe(electrical))
+
+
 def test_fault_effects_on_the_demo_board(demo) -> None:  # type: ignore[no-untyped-def]
     (cut,) = parse_fault_specs(["open:RN1.1"], demo)
     effect = fault_effect(demo, cut)

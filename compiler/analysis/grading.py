@@ -28,7 +28,7 @@ from ..backend.cycle_stream import CycleStream
 from ..backend.records import ScanProgram
 from ..models.board import PinRef
 from ..models.cells import PIN, resolve_capture
-from ..sim.electrical import ElectricalBoard
+from ..sim.electrical import CaptureCell, ElectricalBoard
 from ..sim.fault_effects import FaultEffect, fault_effect, faulted_groups, good_groups
 from ..sim.faults import OPEN_NET, OPEN_PIN, SHORT, STUCK_AT, TAP_SHORT, Fault
 from ..sim.logic import evaluate
@@ -85,6 +85,24 @@ class _Pass:
 def _rails(value: int, known: int, full: int) -> tuple[int, int]:
     value &= known
     return (full & ~value, value | (full & ~known))
+
+
+def _capture_masks(cell: CaptureCell, classes: Mapping[str, int]) -> tuple[int, int, int]:
+    """The states (by capture class) in which `cell` captures its pin: always, only with the
+    pin's output released, only with it driving (BIDIR cells capture per direction)."""
+    always = released = driving = 0
+    for cls, mask in classes.items():
+        if not mask:
+            continue
+        when_released = resolve_capture(cell.info, cell.function, cls, False) == PIN
+        when_driving = resolve_capture(cell.info, cell.function, cls, True) == PIN
+        if when_released and when_driving:
+            always |= mask
+        elif when_released:
+            released |= mask
+        elif when_driving:
+            driving |= mask
+    return always, released, driving
 
 
 class FaultGrader:
@@ -166,6 +184,10 @@ class FaultGrader:
         full = self.full
         observers: dict[PinRef, tuple[_Observer, ...]] = {}
         excluded = 0
+        # Per device, cell description and function: the states in which the cell captures its
+        # pin whatever the pin's own output does, only while it is released, only while it
+        # drives (boards repeat a few cell types; every state's capture class is known).
+        captures: dict[tuple[int, int, str], tuple[int, int, int]] = {}
         for pin, receiver in self.electrical.receivers.items():
             states = self.states.devices[receiver.device]
             off, on = self._enabled(pin)
@@ -175,16 +197,12 @@ class FaultGrader:
             for cell in receiver.cells:
                 if not 0 <= cell.number < states.length:
                     continue
-                pin_mask = 0
-                for cls, mask in states.classes.items():
-                    if not mask:
-                        continue
-                    released = resolve_capture(cell.info, cell.function, cls, False)
-                    driving = resolve_capture(cell.info, cell.function, cls, True)
-                    if released == driving:
-                        pin_mask |= mask if released == PIN else 0
-                    else:
-                        pin_mask |= mask & ((off if released == PIN else 0) | (on if driving == PIN else 0))
+                key = (receiver.device, id(cell.info), cell.function)
+                masks = captures.get(key)
+                if masks is None:
+                    masks = captures[key] = _capture_masks(cell, states.classes)
+                always, released, driving = masks
+                pin_mask = always | (released & off) | (driving & on)
                 compared = column(states.compare_rows, states.length, cell.number) & pin_mask
                 if not compared:
                     continue

@@ -175,16 +175,33 @@ def _capture_cells(device: DeviceModel, port: str) -> tuple[CaptureCell, ...]:
     return tuple(by_number[number] for number in sorted(by_number))
 
 
-def _scan_driver(device: DeviceModel, position: int, pin: PinRef) -> ScanDriver | None:
-    for cell in device.cells_of(pin.port):
+_DriverCell = tuple[int, str, "int | None", "int | None", str]  # ScanDriver's fields after pin, device
+
+
+def _driver_cell(device: DeviceModel, port: str) -> _DriverCell | None:
+    """The output cell of a port: number, function, control cell, disable value and result."""
+    for cell in device.cells_of(port):
         if cell.function in DRIVER_FUNCTIONS:
             result = (cell.disable_result or "Z").upper()
             if result not in DISABLE_RESULTS:
                 result = "Z"
             control = cell.control_cell if cell.disable_value is not None else None
-            return ScanDriver(pin, position, cell.number, cell.function, control,
-                              cell.disable_value if control is not None else None, result)
+            return (cell.number, cell.function, control,
+                    cell.disable_value if control is not None else None, result)
     return None
+
+
+@per_model
+def _scan_ports(device: DeviceModel) -> tuple[tuple[str, _DriverCell | None, tuple[CaptureCell, ...]], ...]:
+    """The ports that drive or capture their pins, in register order, with their output cell
+    and capturing cells: worked out once per device model, since a board repeats its parts."""
+    found = []
+    for port in device.cells_by_port:
+        driver = _driver_cell(device, port)
+        cells = capture_cells(device, port)
+        if driver is not None or cells:
+            found.append((port, driver, cells))
+    return tuple(found)
 
 
 class _UnionFind:
@@ -232,19 +249,25 @@ def build_electrical(board: Board, diagnostics: Diagnostics,
     nodes: list[ElectricalNode] = []
     node_of_net: dict[str, int] = {}
     node_of_pin: dict[PinRef, int] = {}
+    pulled = board.pulls
     for net in nets:
         if net in node_of_net:
             continue
         group = members[joins.find(net)]
-        pins = tuple(pin for name in group for pin in board.nets[name].pins)
-        pulls = tuple(board.pulls[name] for name in group if name in board.pulls)
         index = len(nodes)
-        nodes.append(ElectricalNode(index, group[0], tuple(group), pins, pulls,
-                                    any(board.nets[name].tap for name in group)))
+        if len(group) == 1:  # a net joined to no other: the common case, made directly
+            spec = board.nets[net]
+            pins = tuple(spec.pins)
+            nodes.append(ElectricalNode(index, net, (net,), pins, (pulled[net],) if net in pulled else (),
+                                        bool(spec.tap)))
+        else:
+            pins = tuple(pin for name in group for pin in board.nets[name].pins)
+            pulls = tuple(pulled[name] for name in group if name in pulled)
+            nodes.append(ElectricalNode(index, group[0], tuple(group), pins, pulls,
+                                        any(board.nets[name].tap for name in group)))
         for name in group:
             node_of_net[name] = index
-        for pin in pins:
-            node_of_pin[pin] = index
+        node_of_pin.update(dict.fromkeys(pins, index))
 
     def lone_node(pin: PinRef) -> None:
         if pin not in node_of_pin:
@@ -259,15 +282,14 @@ def build_electrical(board: Board, diagnostics: Diagnostics,
         device = entry.device
         devices.append(device)
         technology = board.technology_of(entry.ref)
-        for port in device.cells_by_port:
-            pin = PinRef(entry.ref, port)
-            driver = _scan_driver(device, entry.position, pin)
-            cells = capture_cells(device, port)
-            if driver is not None:
-                drivers[pin] = driver
+        ref, position = entry.ref, entry.position
+        for port, driver_cell, cells in _scan_ports(device):
+            pin = PinRef(ref, port)
+            if driver_cell is not None:
+                drivers[pin] = ScanDriver(pin, position, *driver_cell)
             if cells:
-                receivers[pin] = ScanReceiver(pin, entry.position, cells, technology)
-            if driver is not None or cells:
+                receivers[pin] = ScanReceiver(pin, position, cells, technology)
+            if pin not in node_of_pin:
                 lone_node(pin)
 
     logic_of_pin: dict[PinRef, PartLogic] = {}

@@ -426,44 +426,59 @@ def fault_universe(electrical: ElectricalBoard, classes: Iterable[str] = UNIVERS
     board = electrical.board
     faults: list[Fault] = []
     if "opens" in wanted:
+        receivers, logic_receivers = electrical.receivers, electrical.logic_receivers
         for net in board.nets.values():
+            nets = (net.name,)
             for pin in net.pins:
-                if electrical.is_receiver(pin):
-                    faults.append(Fault(OPEN_PIN, f"open:{pin}", (net.name,), pin=pin, tap=net.tap))
+                if pin in receivers or pin in logic_receivers:
+                    faults.append(Fault(OPEN_PIN, f"open:{pin.ref}.{pin.port}", nets, pin, None, "and",
+                                        None, net.tap))
     if "stuck" in wanted:
         for net in board.nets.values():
-            for value in "01":
-                faults.append(Fault(STUCK_AT, f"stuck-at-{value}:{net.name}", (net.name,),
-                                    value=value, tap=net.tap))
+            nets = (net.name,)
+            faults.append(Fault(STUCK_AT, f"stuck-at-0:{net.name}", nets, None, "0", "and", None, net.tap))
+            faults.append(Fault(STUCK_AT, f"stuck-at-1:{net.name}", nets, None, "1", "and", None, net.tap))
     if "shorts" in wanted:
-        order = {name: i for i, name in enumerate(board.nets)}
-        seen: set[tuple[str, ...]] = set()
-        shorts: list[Fault] = []
-        for entry in board.chain:
-            for port_a, port_b in adjacent_pin_pairs(entry.device):
-                pin_a, pin_b = PinRef(entry.ref, port_a), PinRef(entry.ref, port_b)
-                net_a, net_b = electrical.net_of_pin.get(pin_a), electrical.net_of_pin.get(pin_b)
-                if net_a is not None and net_b is not None:
-                    if net_a == net_b:
-                        continue
-                    pair = tuple(sorted((net_a, net_b), key=order.__getitem__))
-                    if pair in seen:
-                        continue
-                    seen.add(pair)
-                    tap = board.nets[net_a].tap or board.nets[net_b].tap
-                    if board.nets[net_a].tap and board.nets[net_b].tap:
-                        continue  # between two TAP signals: outside the model (see parse_fault)
-                    shorts.append(Fault(SHORT, f"short:{pair[0]},{pair[1]}", pair, tap=tap))
-                    continue
-                for net, pin in ((net_a, pin_b), (net_b, pin_a)):
-                    signal = _tap_signal_of(electrical, pin)
-                    if net is None or signal is None:
-                        continue
-                    key = (net, pin.ref, signal)
-                    if key in seen:
-                        continue
-                    seen.add(key)
-                    shorts.append(Fault(TAP_SHORT, f"short:{net},{pin.ref}.{signal}", (net,),
-                                        pin=pin, tap=True))
-        faults.extend(shorts)
+        faults.extend(_adjacent_shorts(electrical))
     return tuple(faults)
+
+
+def _adjacent_shorts(electrical: ElectricalBoard) -> list[Fault]:
+    """Shorts between the nets (or a net and a TAP signal) on adjacent package pins, each once."""
+    board = electrical.board
+    nets = board.nets
+    net_of_pin = electrical.net_of_pin
+    order = {name: i for i, name in enumerate(nets)}
+    seen: set[tuple[str, ...]] = set()
+    shorts: list[Fault] = []
+    for entry in board.chain:
+        ref = entry.ref
+        for port_a, port_b in adjacent_pin_pairs(entry.device):
+            pin_a, pin_b = PinRef(ref, port_a), PinRef(ref, port_b)
+            net_a, net_b = net_of_pin.get(pin_a), net_of_pin.get(pin_b)
+            if net_a is not None and net_b is not None:
+                if net_a == net_b:
+                    continue
+                pair = (net_a, net_b) if order[net_a] < order[net_b] else (net_b, net_a)
+                if pair in seen:
+                    continue
+                seen.add(pair)
+                tap_a, tap_b = nets[net_a].tap, nets[net_b].tap
+                if tap_a and tap_b:
+                    continue  # between two TAP signals: outside the model (see parse_fault)
+                shorts.append(Fault(SHORT, f"short:{pair[0]},{pair[1]}", pair, None, None, "and", None,
+                                    tap_a or tap_b))
+                continue
+            for net, pin in ((net_a, pin_b), (net_b, pin_a)):
+                if net is None:
+                    continue
+                signal = tap_signal_of_port(entry.device, pin.port)
+                if signal is None:
+                    continue
+                key = (net, ref, signal)
+                if key in seen:
+                    continue
+                seen.add(key)
+                shorts.append(Fault(TAP_SHORT, f"short:{net},{ref}.{signal}", (net,), pin, None, "and",
+                                    None, True))
+    return shorts

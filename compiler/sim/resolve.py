@@ -301,6 +301,8 @@ class GroupSolver:
 
     def _order(self, members: list[int]) -> list[tuple[int, ...]]:
         """Groups in dependency order; a tuple of several groups is a loop to settle."""
+        if not any(self.logic_pins[group] for group in members):
+            return [(group,) for group in members]  # nothing depends on anything: as listed
         inside = set(members)
         position = {group: i for i, group in enumerate(members)}
         depends: list[list[int]] = []
