@@ -20,7 +20,7 @@ from bitarray import bitarray
 
 from ..diagnostics import Diagnostic, ScanloomError, SourceSpan, nearest, read_source
 from ..file_kinds import SHIFT_FILE, misplaced_kind_error
-from ..models.bsdl_registers import MAX_REGISTER_LENGTH, STANDARD_LENGTHS
+from ..models.device import MAX_REGISTER_LENGTH, STANDARD_LENGTHS
 from .cycle_stream import CycleStream, tap_states_from_tms
 from .hexbits import hex_digits, hex_to_bits
 from .records import (

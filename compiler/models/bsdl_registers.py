@@ -22,7 +22,8 @@ from .bsdl_checks import (
 )
 from .cells import STANDARD_CELLS
 from .device import (
-    BoundaryCell, CellInfo, CompliancePattern, ExecutionRequirement, Port, TapPins,
+    MAX_REGISTER_LENGTH, STANDARD_LENGTHS, BoundaryCell, CellInfo, CompliancePattern, ExecutionRequirement,
+    Port, TapPins,
 )
 
 if TYPE_CHECKING:
@@ -39,8 +40,6 @@ DEFAULT_SELECTS = {
     "INTEST": "BOUNDARY", "IDCODE": "DEVICE_ID", "USERCODE": "DEVICE_ID", "CLAMP": "BYPASS",
     "HIGHZ": "BYPASS", "EXTEST_PULSE": "BOUNDARY", "EXTEST_TRAIN": "BOUNDARY",
 }
-MAX_REGISTER_LENGTH = 1_000_000  # a sanity limit far above any device, for every data register
-STANDARD_LENGTHS = {"BYPASS": 1, "DEVICE_ID": 32}  # 10.1.1 and 12.1.1 (from memory)
 # Cell types of the IEEE 1149.6 package (from memory); their captures are not in cells.py.
 AC_CELL_PREFIX = "AC_"
 

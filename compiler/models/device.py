@@ -26,12 +26,17 @@ __all__ = [
     "DRIVER_FUNCTIONS",
     "RECEIVER_FUNCTIONS",
     "CONTROL_FUNCTIONS",
+    "MAX_REGISTER_LENGTH",
+    "STANDARD_LENGTHS",
 ]
 
 # Cell functions of IEEE Std 1149.1 BSDL (the <function> field of BOUNDARY_REGISTER).
 DRIVER_FUNCTIONS = frozenset({"OUTPUT2", "OUTPUT3", "BIDIR"})
 RECEIVER_FUNCTIONS = frozenset({"INPUT", "CLOCK", "BIDIR", "OBSERVE_ONLY"})
 CONTROL_FUNCTIONS = frozenset({"CONTROL", "CONTROLR"})
+
+MAX_REGISTER_LENGTH = 1_000_000  # a sanity limit far above any device, for every data register
+STANDARD_LENGTHS = {"BYPASS": 1, "DEVICE_ID": 32}  # 10.1.1 and 12.1.1 (from memory)
 
 
 def _by_fields(record: Any) -> tuple[type, tuple[Any, ...]]:

@@ -17,7 +17,6 @@ from pathlib import Path
 from typing import Sequence
 
 from bitarray import bitarray
-from vcd import VCDWriter
 
 from ... import __version__
 from ..cycle_stream import CycleStream
@@ -66,6 +65,8 @@ def write_vcd(cycles: CycleStream, path: Path, *, tck_hz: float | None, title: s
     tdo_changes = _changes(tdo) | _changes(mask)
     states = cycles.state_names
     with atomic_output(Path(path)) as handle:
+        from vcd import VCDWriter  # pyvcd, imported only when a waveform is written
+
         writer = VCDWriter(handle, timescale=timescale, date="", version=f"scanloom {__version__}",
                            comment=title, check_values=False)
         scope = "scanloom"
