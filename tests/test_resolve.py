@@ -15,7 +15,7 @@ from scanloom.models.board import PinRef
 from scanloom.sim.electrical import ScanDriver
 from scanloom.sim.resolve import (
     COMBINE_AND, COMBINE_OR, DriveSum, Level, PinDrive, contention_mask, drive_sum, logic_drive,
-    read_level, resolve_level, scan_pin_drive,
+    read_level, resolve_joined, resolve_level, scan_pin_drive,
 )
 
 FULL = 1
@@ -166,3 +166,21 @@ def test_logic_outputs_three_state_with_their_enable() -> None:
 def test_drive_sums_keep_definite_values_apart_from_unknowns() -> None:
     total = DriveSum().plus(strong("X")).plus(strong("1"))
     assert (total.d0, total.d1) == (0, 1)
+
+
+_DRIVES = st.builds(PinDrive, *(st.integers(0, 0b1111) for _ in range(5)))
+_PULLS = st.lists(st.sampled_from(["up", "down"]), max_size=2)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(_DRIVES, max_size=3), _PULLS, st.lists(_DRIVES, max_size=3), _PULLS,
+       st.sampled_from([COMBINE_AND, COMBINE_OR, "wire"]))
+def test_two_nodes_joined_resolve_as_all_their_drives_summed(first, first_pulls, second, second_pulls,  # type: ignore[no-untyped-def]
+                                                             combine) -> None:
+    """A short resolved from the two nodes' sums is the short resolved from every drive on it
+    (drive sums OR their rails, so summing in two parts changes nothing)."""
+    full = 0b1111
+    joined = resolve_joined(drive_sum(first, first_pulls, full), drive_sum(second, second_pulls, full),
+                            full, combine)
+    whole = resolve_level(drive_sum(first + second, first_pulls + second_pulls, full), full, combine=combine)
+    assert joined == whole

@@ -20,8 +20,10 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Iterable
 
 from ..models.board import PinRef
-from ..sim.faults import OPEN_PIN, SHORT, STUCK_AT, Fault, tap_signal_of_port
-from ..sim.resolve import COMBINE_AND, COMBINE_OR, DriveSum, Level, drive_sum, level_of_constant, resolve_level
+from ..sim.faults import OPEN_PIN, SHORT, STUCK_AT, Fault, tap_ports
+from ..sim.resolve import (
+    COMBINE_AND, COMBINE_OR, DriveSum, Level, drive_sum, level_of_constant, resolve_joined, resolve_level,
+)
 from .fault_verdicts import DETECTED, NOT_DETECTED, POSSIBLY_DETECTED, FaultVerdict
 
 if TYPE_CHECKING:
@@ -47,7 +49,11 @@ class NodeFaults:
         self.drives = grader._drives
         self.offset = grader._segment_offset
         node_of_pin = electrical.node_of_pin
-        self.read_nodes = frozenset(node_of_pin[pin] for pin in electrical.readers_of_pin)
+        read = {node_of_pin[pin] for pin in electrical.readers_of_pin}
+        # Nodes whose faults go the general way: read by logic, or carrying a TAP signal.
+        self.blocked = frozenset(read | {node.index for node in electrical.nodes if node.tap})
+        self.tap_pins = frozenset(PinRef(entry.ref, port) for entry in electrical.board.chain
+                                  for port in tap_ports(entry.device))
         self.pin_cells: dict[PinRef, tuple[_Cell, ...]] = {}
         node_cells: dict[int, list[_Cell]] = {}
         node_seen: dict[int, int] = {}
@@ -80,9 +86,6 @@ class NodeFaults:
             self._totals[node] = found
         return found
 
-    def _plain(self, node: int) -> bool:
-        return node not in self.read_nodes and not self.electrical.nodes[node].tap
-
     # -- one fault --------------------------------------------------------------------------
     def grade(self, fault: Fault) -> FaultVerdict | None:
         """The verdict, when the fault stays on its own nodes; None leaves it to the general way."""
@@ -97,65 +100,52 @@ class NodeFaults:
 
     def _stuck(self, fault: Fault) -> FaultVerdict | None:
         node = self.electrical.node_of_net[fault.nets[0]]
-        if not self._plain(node) or fault.value not in self._constants:
+        level = self._constants.get(fault.value)  # type: ignore[arg-type]
+        if node in self.blocked or level is None:
             return None
-        level = self._constants[fault.value]  # type: ignore[index]
-        return self._verdict(fault, ((node, level),), self.node_seen.get(node, 0))
+        cells = self.node_cells.get(node)
+        return self._findings(fault, ((cells, level),) if cells else (), self.node_seen.get(node, 0))
 
     def _short(self, fault: Fault) -> FaultVerdict | None:
         combine = _COMBINE.get(fault.mode)
         node_of_net = self.electrical.node_of_net
         a, b = node_of_net[fault.nets[0]], node_of_net[fault.nets[1]]
-        if combine is None or a == b or not self._plain(a) or not self._plain(b):
+        blocked = self.blocked
+        if combine is None or a == b or a in blocked or b in blocked:
             return None
-        first, second = self._total(a), self._total(b)
-        total = DriveSum(first.s0 | second.s0, first.s1 | second.s1, first.d0 | second.d0,
-                         first.d1 | second.d1, first.r0 | second.r0, first.r1 | second.r1,
-                         first.e0 | second.e0, first.e1 | second.e1, first.keep | second.keep)
-        level = resolve_level(total, self.full, combine=combine)
-        seen = self.node_seen.get(a, 0) | self.node_seen.get(b, 0)
-        return self._verdict(fault, ((a, level), (b, level)), seen)
+        level = resolve_joined(self._total(a), self._total(b), self.full, combine)
+        node_cells, node_seen = self.node_cells, self.node_seen
+        pieces = [(cells, level) for cells in (node_cells.get(a), node_cells.get(b)) if cells]
+        return self._findings(fault, pieces, node_seen.get(a, 0) | node_seen.get(b, 0))
 
     def _open_pin(self, fault: Fault) -> FaultVerdict | None:
         pin = fault.pin
+        if pin is None or not fault.nets or pin in self.tap_pins:
+            return None
         electrical = self.electrical
-        if pin is None or not fault.nets:
-            return None
-        entry = electrical.board.devices.get(pin.ref)
-        if entry is not None and tap_signal_of_port(entry.device, pin.port) is not None:
-            return None
         node = electrical.node_of_pin[pin]
         spec = electrical.nodes[node]
-        if not self._plain(node) or node in electrical.series_of_node or len(spec.nets) > 1:
+        if node in self.blocked or node in electrical.series_of_node or len(spec.nets) > 1:
             return None
-        drives = self.drives
-        cut = drives.get(pin)
-        full = self.full
+        cut = self.drives.get(pin)
+        pin_cells = self.pin_cells
+        cells = pin_cells.get(pin)
         if cut is None:
-            cut_level = self._floating
-            rest_total = self._total(node)
-        else:
-            cut_level = resolve_level(drive_sum((cut,), (), full), full)
-            rest_total = drive_sum([drives[p] for p in spec.pins if p != pin and p in drives],
-                                   spec.pulls, full)
-        pieces: list[tuple[tuple[_Cell, ...], Level]] = []
-        cells = self.pin_cells.get(pin)
-        if cells:
-            pieces.append((cells, cut_level))
-        rest_level = resolve_level(rest_total, full)
+            # A receiver only: the rest of the node keeps every drive and pull, so its level
+            # is the fault-free one (the sum the fault-free board resolved) and it only counts
+            # as observed; the cut pin floats.
+            pieces = [(cells, self._floating)] if cells else []
+            return self._findings(fault, pieces, self.node_seen.get(node, 0))
+        full = self.full
+        drives = self.drives
+        pieces = [(cells, resolve_level(drive_sum((cut,), (), full), full))] if cells else []
+        rest_level = resolve_level(drive_sum([drives[p] for p in spec.pins if p != pin and p in drives],
+                                             spec.pulls, full), full)
         if rest_level != self.good_levels[node]:
-            pieces.extend((self.pin_cells[p], rest_level) for p in spec.pins
-                          if p != pin and p in self.pin_cells)
+            pieces.extend((pin_cells[p], rest_level) for p in spec.pins if p != pin and p in pin_cells)
         return self._findings(fault, pieces, self.node_seen.get(node, 0))
 
     # -- comparing ----------------------------------------------------------------------------
-    def _verdict(self, fault: Fault, levels: Iterable[tuple[int, Level]], seen: int) -> FaultVerdict:
-        good = self.good_levels
-        cells = self.node_cells
-        pieces = [(cells[node], level) for node, level in levels
-                  if node in cells and level != good[node]]
-        return self._findings(fault, pieces, seen)
-
     def _findings(self, fault: Fault, pieces: Iterable[tuple[tuple[_Cell, ...], Level]],
                   seen: int) -> FaultVerdict:
         """The earliest detecting bit, else the earliest bit made X, over the cells read at a level."""

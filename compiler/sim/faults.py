@@ -47,6 +47,7 @@ __all__ = [
     "adjacent_pin_pairs",
     "tap_port",
     "tap_signal_of_port",
+    "tap_ports",
 ]
 
 OPEN_PIN = "open-pin"
@@ -99,6 +100,11 @@ def tap_signal_of_port(device: DeviceModel, port: str) -> str | None:
     """The TAP signal (TDI, TDO, TMS, TCK or TRST, first in that order) that `port` carries on
     `device`, or None; a table per device model, since every pin of a board's universe asks."""
     return _tap_signals(device).get(port)
+
+
+def tap_ports(device: DeviceModel) -> tuple[str, ...]:
+    """The ports of `device` that carry a TAP signal."""
+    return tuple(_tap_signals(device))
 
 
 @per_model

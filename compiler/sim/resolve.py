@@ -38,6 +38,7 @@ __all__ = [
     "GroupSolver",
     "drive_sum",
     "resolve_level",
+    "resolve_joined",
     "read_level",
     "scan_pin_drive",
     "logic_drive",
@@ -170,17 +171,32 @@ def resolve_level(total: DriveSum, full: int, *, combine: str = COMBINE_WIRE,
     """
     if forced is not None:
         return level_of_constant(forced, full)
-    strong = total.s0 | total.s1
-    v0, v1 = _combined(total.s0, total.s1, total.d0, total.d1, strong, combine)
+    return _resolve(total.s0, total.s1, total.d0, total.d1, total.r0, total.r1, total.e0, total.e1,
+                    total.keep, full, combine, dominant, previous)
+
+
+def resolve_joined(first: DriveSum, second: DriveSum, full: int, combine: str) -> Level:
+    """The level of two nodes joined into one (a short): both nodes' drives summed, resolved
+    under `combine`, exactly as `resolve_level` resolves the sum of all their drives."""
+    return _resolve(first.s0 | second.s0, first.s1 | second.s1, first.d0 | second.d0,
+                    first.d1 | second.d1, first.r0 | second.r0, first.r1 | second.r1,
+                    first.e0 | second.e0, first.e1 | second.e1, first.keep | second.keep,
+                    full, combine, None, None)
+
+
+def _resolve(s0: int, s1: int, d0: int, d1: int, r0: int, r1: int, e0: int, e1: int, keep: int,
+             full: int, combine: str, dominant: PinDrive | None, previous: Level | None) -> Level:
+    strong = s0 | s1
+    v0, v1 = _combined(s0, s1, d0, d1, strong, combine)
     if dominant is not None:
         wins = dominant.s0 | dominant.s1
         v0 = (v0 & ~wins) | dominant.s0
         v1 = (v1 & ~wins) | dominant.s1
-    resistive = (total.r0 | total.r1) & ~strong
-    w0, w1 = _combined(total.r0, total.r1, total.e0, total.e1, total.r0 | total.r1, combine)
+    resistive = (r0 | r1) & ~strong
+    w0, w1 = _combined(r0, r1, e0, e1, r0 | r1, combine)
     v0 |= w0 & resistive
     v1 |= w1 & resistive
-    kept = total.keep & ~strong & ~resistive & full
+    kept = keep & ~strong & ~resistive & full
     floating = full & ~(strong | resistive | kept)
     if kept:
         if previous is not None:
