@@ -156,31 +156,34 @@ class _VerdictLines:
 
     def __init__(self) -> None:
         self.encode = json.JSONEncoder(separators=(", ", ": ")).encode
-        self.strings: dict[str, str] = {}
-        self.firsts: dict[int, str] = {}  # id of a Detection -> its meaning, encoded
-
-    def string(self, text: str) -> str:
-        found = self.strings.get(text)
-        if found is None:
-            found = self.strings[text] = self.encode(text)
-        return found
+        self.middles: dict[tuple[str, str], str] = {}  # class and verdict, encoded with their keys
+        self.firsts: dict[int, str] = {}  # id of a Detection -> its meaning, encoded with its key
+        self.reasons: dict[str, str] = {}
 
     def lines(self, verdicts: tuple[FaultVerdict, ...]) -> list[str]:
-        encode, string, firsts = self.encode, self.string, self.firsts
+        encode, middles, firsts, reasons = self.encode, self.middles, self.firsts, self.reasons
+        string = json.encoder.encode_basestring_ascii  # what `encode` does with a str
         lines = []
         for v in verdicts:
             fault = v.fault
-            line = ('    {"fault": ' + encode(fault.spec) + ', "class": ' + string(fault.fault_class)
-                    + ', "verdict": ' + string(v.verdict))
+            key = (fault.fault_class, v.verdict)
+            middle = middles.get(key)
+            if middle is None:
+                middle = middles[key] = f', "class": {encode(key[0])}, "verdict": {encode(key[1])}'
             first = v.first
-            if first is not None:
-                meaning = firsts.get(id(first))
-                if meaning is None:
-                    meaning = firsts[id(first)] = encode(first.meaning.as_data())
-                line += ', "first": ' + meaning
-            if v.reason is not None:
-                line += ', "reason": ' + string(v.reason)
-            lines.append(line + "}")
+            if first is None:
+                shown = ""
+            else:
+                shown = firsts.get(id(first))  # type: ignore[assignment]
+                if shown is None:
+                    shown = firsts[id(first)] = ', "first": ' + encode(first.meaning.as_data())
+            reason = v.reason
+            if reason is not None:
+                why = reasons.get(reason)
+                if why is None:
+                    why = reasons[reason] = ', "reason": ' + encode(reason)
+                shown += why
+            lines.append(f'    {{"fault": {string(fault.spec)}{middle}{shown}}}')
         return lines
 
 

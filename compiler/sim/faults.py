@@ -21,9 +21,11 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from itertools import cycle, repeat
 from pathlib import Path
 from typing import Iterable, Sequence
 
+from ..bulk_records import frozen_records
 from ..diagnostics import Diagnostic, Diagnostics, ScanloomError, SourceSpan, nearest, read_source
 from ..models.board import PinRef
 from ..models.device import DeviceModel
@@ -427,23 +429,34 @@ def _adjacent_pairs(device: DeviceModel) -> tuple[tuple[str, str], ...]:
 
 
 def fault_universe(electrical: ElectricalBoard, classes: Iterable[str] = UNIVERSE_CLASSES) -> tuple[Fault, ...]:
-    """The faults of a board, in a stable order: opens, then stuck-at, then shorts."""
+    """The faults of a board, in a stable order: opens, then stuck-at, then shorts.
+
+    A board has a fault per receiver pin, two per net and one per adjacent pair: the faults
+    are made a column of fields at a time (`frozen_records`)."""
     wanted = set(classes)
     board = electrical.board
     faults: list[Fault] = []
     if "opens" in wanted:
         receivers, logic_receivers = electrical.receivers, electrical.logic_receivers
+        pins: list[PinRef] = []
+        of_net: list[tuple[str, ...]] = []
+        taps: list[bool] = []
         for net in board.nets.values():
             nets = (net.name,)
             for pin in net.pins:
                 if pin in receivers or pin in logic_receivers:
-                    faults.append(Fault(OPEN_PIN, f"open:{pin.ref}.{pin.port}", nets, pin, None, "and",
-                                        None, net.tap))
+                    pins.append(pin)
+                    of_net.append(nets)
+                    taps.append(net.tap)
+        specs = [f"open:{ref}.{port}" for ref, port in pins]
+        faults += frozen_records(Fault, len(pins), repeat(OPEN_PIN), specs, of_net, pins, repeat(None),
+                                 repeat("and"), repeat(None), taps)
     if "stuck" in wanted:
-        for net in board.nets.values():
-            nets = (net.name,)
-            faults.append(Fault(STUCK_AT, f"stuck-at-0:{net.name}", nets, None, "0", "and", None, net.tap))
-            faults.append(Fault(STUCK_AT, f"stuck-at-1:{net.name}", nets, None, "1", "and", None, net.tap))
+        names = [(name,) for name in board.nets for _ in "01"]
+        specs = [f"stuck-at-{value}:{name}" for name in board.nets for value in "01"]
+        taps = [net.tap for net in board.nets.values() for _ in "01"]
+        faults += frozen_records(Fault, len(names), repeat(STUCK_AT), specs, names, repeat(None),
+                                 cycle("01"), repeat("and"), repeat(None), taps)
     if "shorts" in wanted:
         faults.extend(_adjacent_shorts(electrical))
     return tuple(faults)
@@ -456,7 +469,11 @@ def _adjacent_shorts(electrical: ElectricalBoard) -> list[Fault]:
     net_of_pin = electrical.net_of_pin
     order = {name: i for i, name in enumerate(nets)}
     seen: set[tuple[str, ...]] = set()
-    shorts: list[Fault] = []
+    kinds: list[str] = []
+    specs: list[str] = []
+    shorted: list[tuple[str, ...]] = []
+    pins: list[PinRef | None] = []
+    taps: list[bool] = []
     for entry in board.chain:
         ref = entry.ref
         for port_a, port_b in adjacent_pin_pairs(entry.device):
@@ -472,8 +489,11 @@ def _adjacent_shorts(electrical: ElectricalBoard) -> list[Fault]:
                 tap_a, tap_b = nets[net_a].tap, nets[net_b].tap
                 if tap_a and tap_b:
                     continue  # between two TAP signals: outside the model (see parse_fault)
-                shorts.append(Fault(SHORT, f"short:{pair[0]},{pair[1]}", pair, None, None, "and", None,
-                                    tap_a or tap_b))
+                kinds.append(SHORT)
+                specs.append(f"short:{pair[0]},{pair[1]}")
+                shorted.append(pair)
+                pins.append(None)
+                taps.append(tap_a or tap_b)
                 continue
             for net, pin in ((net_a, pin_b), (net_b, pin_a)):
                 if net is None:
@@ -485,6 +505,10 @@ def _adjacent_shorts(electrical: ElectricalBoard) -> list[Fault]:
                 if key in seen:
                     continue
                 seen.add(key)
-                shorts.append(Fault(TAP_SHORT, f"short:{net},{ref}.{signal}", (net,), pin, None, "and",
-                                    None, True))
-    return shorts
+                kinds.append(TAP_SHORT)
+                specs.append(f"short:{net},{ref}.{signal}")
+                shorted.append((net,))
+                pins.append(pin)
+                taps.append(True)
+    return frozen_records(Fault, len(kinds), kinds, specs, shorted, pins, repeat(None), repeat("and"),
+                          repeat(None), taps)
