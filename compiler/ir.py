@@ -21,7 +21,7 @@ import json
 from dataclasses import dataclass, field, fields, is_dataclass
 from itertools import repeat
 from operator import attrgetter
-from typing import Any, Iterable, Iterator, Self, Sequence, TypeVar, Union, overload
+from typing import Any, Callable, Iterable, Iterator, Self, Sequence, TypeVar, Union, overload
 
 from .bulk_records import frozen_records
 from .diagnostics import SourceSpan
@@ -81,72 +81,109 @@ class _Columns(Sequence[_Record]):
     """Records of one kind held as columns, one entry per bit; immutable.
 
     `_fields` names the holder's columns in the order of the record's fields, the span last
-    (None in `spans`: no bit has a span). Equal to another holder or to a tuple of the same
-    records (spans do not count, as for the records). `records` makes the records once, for
-    readers that want them one by one.
+    (None in `spans`: no bit has a span). Made from columns (the lowering of large steps) or
+    from records (`of`: small steps, records built by hand), it turns one into the other on
+    first use, so either kind of reader pays only for what it reads. Equal to another holder
+    or to a tuple of the same records (spans do not count, as for the records).
     """
 
-    __slots__ = ("targets", "pins", "values", "spans", "_made")
+    __slots__ = ("_columns_made", "_made")
     _record: type
     _fields: tuple[str, ...]
+    _extra: int  # columns after the values, before the spans
+    _getters: tuple[Callable[[Any], Any], ...]  # the record fields of `_fields`
 
     targets: tuple[str, ...]
     pins: tuple[bool, ...]
     values: str  # one character per bit
     spans: tuple[SourceSpan | None, ...] | None
 
+    def __init_subclass__(cls, **kwargs: Any) -> None:
+        super().__init_subclass__(**kwargs)
+        cls._extra = len(cls._fields) - 3
+        names = [spec.name for spec in fields(cls._record)][:len(cls._fields)]
+        cls._getters = tuple(map(attrgetter, names))
+        for number, name in enumerate((*cls._fields, "spans")):
+            setattr(cls, name, property(_column_reader(number),
+                                        doc=f"the {name} column"))
+
     def __init__(self, targets: Sequence[str], pins: Sequence[bool], values: str | Iterable[str],
                  *more: Any):
         """The columns of `_fields` in order, then the spans (optional)."""
-        extra = len(self._fields) - 3
-        if not extra <= len(more) <= extra + 1:
+        extra = self._extra
+        if len(more) != extra and len(more) != extra + 1:
             raise TypeError(f"{type(self).__name__} takes the columns {', '.join(self._fields)} "
                             "and the spans")
-        columns = [tuple(targets), tuple(pins), values if isinstance(values, str) else "".join(values)]
-        columns += [tuple(column) for column in more[:extra]]
         spans = more[extra] if len(more) > extra else None
-        spans = tuple(spans) if spans is not None else None
-        if any(len(column) != len(columns[0]) for column in columns) or \
-                (spans is not None and len(spans) != len(columns[0])):
+        columns = (tuple(targets), tuple(pins), values if type(values) is str else "".join(values),
+                   *map(tuple, more[:extra]), tuple(spans) if spans is not None else None)
+        size = len(columns[0])
+        if any(len(column) != size for column in columns[1:-1]) or \
+                (columns[-1] is not None and len(columns[-1]) != size):
             raise ValueError(f"{type(self).__name__}: columns of different lengths")
-        for name, column in zip(self._fields, columns):
-            object.__setattr__(self, name, column)
-        object.__setattr__(self, "spans", spans)
+        object.__setattr__(self, "_columns_made", columns)
         object.__setattr__(self, "_made", None)
 
     @classmethod
+    def prepared(cls, *columns: Any) -> Self:
+        """A holder of columns that are already what `__init__` makes of its arguments: tuples
+        of one length, the values a string, the spans a tuple or None (the lowering's, made
+        per step of a program of tens of thousands of steps)."""
+        holder = object.__new__(cls)
+        object.__setattr__(holder, "_columns_made", columns)
+        object.__setattr__(holder, "_made", None)
+        return holder
+
+    @classmethod
     def of(cls, records: Iterable[_Record]) -> Self:
-        """The columns of these records (the holder itself when it is one)."""
+        """These records as a holder (the holder itself when it is one); the columns are made
+        when first read."""
         if isinstance(records, cls):
             return records
-        made = tuple(records)
-        names = [spec.name for spec in fields(cls._record)][:len(cls._fields)]
-        spans = tuple(map(_SPAN, made))
-        return cls(*(tuple(map(attrgetter(name), made)) for name in names),
-                   spans if any(span is not None for span in spans) else None)
+        holder = object.__new__(cls)
+        object.__setattr__(holder, "_columns_made", None)
+        object.__setattr__(holder, "_made", records if type(records) is tuple else tuple(records))
+        return holder
+
+    def _all_columns(self) -> tuple[Any, ...]:
+        """Every column of `_fields` and the spans, made from the records on first use."""
+        columns = self._columns_made
+        if columns is None:
+            made = self._made
+            assert made is not None
+            taken = [tuple(map(getter, made)) for getter in self._getters]
+            values = "".join(taken[2])
+            if len(values) != len(made):
+                raise ValueError(f"{type(self).__name__}: a value that is not one character")
+            spans = tuple(map(_SPAN, made))
+            columns = (taken[0], taken[1], values, *taken[3:],
+                       None if spans.count(None) == len(spans) else spans)
+            object.__setattr__(self, "_columns_made", columns)
+        return columns
 
     def __setattr__(self, name: str, value: Any) -> None:
         raise AttributeError(f"{type(self).__name__} is immutable")
 
     def _key(self) -> tuple:
-        return tuple(getattr(self, name) for name in self._fields)
-
-    def _columns(self, spans_for_all: Iterable[SourceSpan | None]) -> tuple[Any, ...]:
-        return (*self._key(), self.spans if self.spans is not None else spans_for_all)
+        return self._all_columns()[:-1]
 
     @property
     def records(self) -> tuple[_Record, ...]:
         made = self._made
         if made is None:
-            made = tuple(frozen_records(self._record, len(self), *self._columns(repeat(None))))
+            *columns, spans = self._all_columns()
+            made = tuple(frozen_records(self._record, len(columns[0]), *columns,
+                                        spans if spans is not None else repeat(None)))
             object.__setattr__(self, "_made", made)
         return made
 
     def span_of(self, index: int) -> SourceSpan | None:
-        return self.spans[index] if self.spans is not None else None
+        spans = self.spans
+        return spans[index] if spans is not None else None
 
     def __len__(self) -> int:
-        return len(self.targets)
+        made = self._made
+        return len(made) if made is not None else len(self._all_columns()[0])
 
     def __iter__(self) -> Iterator[_Record]:
         return iter(self.records)
@@ -160,7 +197,9 @@ class _Columns(Sequence[_Record]):
     def __getitem__(self, index: int | slice) -> _Record | tuple[_Record, ...]:
         if isinstance(index, slice) or self._made is not None:
             return self.records[index]
-        return self._record(*(column[index] for column in self._columns((None,) * len(self))))
+        *columns, spans = self._all_columns()
+        return self._record(*(column[index] for column in columns),
+                            spans[index] if spans is not None else None)
 
     def __eq__(self, other: object) -> bool:
         if type(other) is type(self):
@@ -173,10 +212,16 @@ class _Columns(Sequence[_Record]):
         return hash(self._key())
 
     def __reduce__(self) -> tuple:
-        return (type(self), (*self._key(), self.spans))
+        return (type(self), self._all_columns())
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}({self.records!r})"
+
+
+def _column_reader(number: int) -> Callable[[_Columns], Any]:
+    def read(holder: _Columns) -> Any:
+        return holder._all_columns()[number]
+    return read
 
 
 class DriveColumns(_Columns[Drive]):
@@ -185,7 +230,7 @@ class DriveColumns(_Columns[Drive]):
     DriveColumns(targets, pins, values, drivers, spans=None)
     """
 
-    __slots__ = ("drivers",)
+    __slots__ = ()
     _record = Drive
     _fields = ("targets", "pins", "values", "drivers")
     drivers: tuple[str | None, ...]

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from itertools import chain, repeat
-from operator import itemgetter
+from operator import attrgetter, itemgetter
 from typing import Sequence
 
 from ..collector import collector_paused
@@ -65,6 +65,7 @@ class _Records:
         self.layouts: dict[tuple[int, ...], _Layout] = {}
         self.layout_drivers: dict[tuple[Modes, tuple[int, ...]], tuple[str | None, ...]] = {}
         self.mode_names: dict[Modes, dict[str, str]] = {}
+        self.shared: dict[tuple[str, bool, str, str | None], Drive] = {}
 
     def column_drivers(self, column: ColumnEntries, modes: Modes) -> tuple[str | None, ...]:
         """The scan pin chosen for each bit of a column under these modes."""
@@ -77,7 +78,9 @@ class _Records:
 
     def driver(self, bit: BitRef, modes: Modes) -> str | None:
         """The scan pin that drives `bit` under these modes (the scope remembers its choices)."""
-        return self.scope.choose_driver(bit, modes, self.modes_by_name(modes))
+        by_name = self.mode_names.get(modes)
+        return self.scope.choose_driver(bit, modes, by_name if by_name is not None
+                                        else self.modes_by_name(modes))
 
     def modes_by_name(self, modes: Modes) -> dict[str, str]:
         by_name = self.mode_names.get(modes)
@@ -86,18 +89,27 @@ class _Records:
         return by_name
 
     def drive(self, bit: BitRef, value: str, span: SourceSpan | None, modes: Modes) -> Drive:
-        """One bit's drive (the general path, bit by bit)."""
-        return Drive(bit.target, bit.is_pin, value, self.driver(bit, modes), span)
+        """One bit's drive (the general path, bit by bit); span-less ones are shared."""
+        driver = self.driver(bit, modes)
+        if span is not None:
+            return Drive(bit.target, bit.is_pin, value, driver, span)
+        key = (bit.target, bit.is_pin, value, driver)
+        found = self.shared.get(key)
+        if found is None:
+            found = self.shared[key] = Drive(bit.target, bit.is_pin, value, driver)
+        return found
 
     def layout(self, assigned: Sequence[Assigned]) -> _Layout:
         """Target order and the target and pin columns of these columns' bits."""
-        key = tuple(id(item.column) for item in assigned)
+        key = tuple(map(id, map(_COLUMN_OF, assigned)))
         found = self.layouts.get(key)
         if found is None:
             targets = [target for item in assigned for target in item.column.targets]
-            gather = _Gather(sorted(range(len(targets)), key=targets.__getitem__))
+            order = sorted(range(len(targets)), key=targets.__getitem__)
+            gather = _Gather(order)
             pins = tuple(chain.from_iterable(item.column.pins for item in assigned))
-            found = self.layouts[key] = _Layout(key, gather, gather(targets), gather(pins))
+            found = self.layouts[key] = _Layout(key, gather, gather(targets), gather(pins),
+                                                order == list(range(len(order))))
         return found
 
     def drive_state(self, assigned: Sequence[Assigned], modes: Modes) -> DriveColumns:
@@ -107,13 +119,13 @@ class _Records:
         if drivers is None:
             drivers = self.layout_drivers[(modes, layout.key)] = layout.gather(tuple(chain.from_iterable(
                 self.column_drivers(item.column, modes) for item in assigned)))
-        return DriveColumns(layout.targets, layout.pins, layout.values(assigned), drivers,
-                            layout.spans(assigned))
+        return DriveColumns.prepared(layout.targets, layout.pins, layout.values(assigned), drivers,
+                                     layout.spans(assigned))
 
     def expectations(self, assigned: Sequence[Assigned]) -> ExpectColumns:
         layout = self.layout(assigned)
-        return ExpectColumns(layout.targets, layout.pins, layout.values(assigned),
-                             layout.spans(assigned))
+        return ExpectColumns.prepared(layout.targets, layout.pins, layout.values(assigned),
+                                      layout.spans(assigned))
 
 
 class _TestLowering:
@@ -249,16 +261,19 @@ class _Layout:
     gather: _Gather
     targets: tuple[str, ...]
     pins: tuple[bool, ...]
+    in_order: bool  # the bits are in target order already (a single sorted column, say)
 
     def values(self, assigned: Sequence[Assigned]) -> str:
-        return "".join(self.gather("".join([item.values for item in assigned])))
+        values = assigned[0].values if len(assigned) == 1 else "".join([item.values for item in assigned])
+        return values if self.in_order else "".join(self.gather(values))
 
     def spans(self, assigned: Sequence[Assigned]) -> tuple[SourceSpan | None, ...] | None:
         if all(item.span is None for item in assigned):
             return None
-        return self.gather(tuple(chain.from_iterable(
-            repeat(item.span, item.column.width) for item in assigned)))
+        spans = tuple(chain.from_iterable(repeat(item.span, item.column.width) for item in assigned))
+        return spans if self.in_order else self.gather(spans)
 
 
 _NO_DRIVES = DriveColumns((), (), "", ())
 _NO_EXPECTS = ExpectColumns((), (), "")
+_COLUMN_OF = attrgetter("column")
