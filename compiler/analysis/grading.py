@@ -442,12 +442,17 @@ class FaultGrader:
                     possible = obs.gradable & r0 & r1
                     if possible:
                         first_possible = self._earlier(first_possible, possible, obs)
-        fault = effect.fault
+        return self._verdict(effect.fault, first_detect, first_possible, seen_observed)
+
+    def _verdict(self, fault: Fault, first_detect: tuple[int, int] | None,
+                 first_possible: tuple[int, int] | None, seen: int) -> FaultVerdict:
+        """Detected at the first detecting (state, bit), else possibly detected at the first
+        possible one, else not detected, with the reason."""
         if first_detect is not None:
             return FaultVerdict(fault, DETECTED, self._detection(*first_detect))
         if first_possible is not None:
             return FaultVerdict(fault, POSSIBLY_DETECTED, self._detection(*first_possible))
-        return FaultVerdict(fault, NOT_DETECTED, reason=self._reason(fault, seen_observed))
+        return FaultVerdict(fault, NOT_DETECTED, reason=self._reason(fault, seen))
 
     def _earlier(self, best: tuple[int, int] | None, mask: int, obs: _Observer) -> tuple[int, int]:
         state = (mask & -mask).bit_length() - 1

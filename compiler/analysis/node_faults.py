@@ -24,7 +24,7 @@ from ..sim.faults import OPEN_PIN, SHORT, STUCK_AT, Fault, tap_ports
 from ..sim.resolve import (
     COMBINE_AND, COMBINE_OR, DriveSum, Level, drive_sum, level_of_constant, resolve_joined, resolve_level,
 )
-from .fault_verdicts import DETECTED, NOT_DETECTED, POSSIBLY_DETECTED, FaultVerdict
+from .fault_verdicts import FaultVerdict
 
 if TYPE_CHECKING:
     from .grading import FaultGrader
@@ -171,9 +171,4 @@ class NodeFaults:
                         candidate = (state, offset[(state, device)] + number)
                         if first_possible is None or candidate < first_possible:
                             first_possible = candidate
-        grader = self.grader
-        if first_detect is not None:
-            return FaultVerdict(fault, DETECTED, grader._detection(*first_detect))
-        if first_possible is not None:
-            return FaultVerdict(fault, POSSIBLY_DETECTED, grader._detection(*first_possible))
-        return FaultVerdict(fault, NOT_DETECTED, reason=grader._reason(fault, seen))
+        return self.grader._verdict(fault, first_detect, first_possible, seen)
