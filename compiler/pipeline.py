@@ -9,7 +9,6 @@ The checks that need the IR alone run in a forked process while the scheduler wo
 
 from __future__ import annotations
 
-from contextlib import suppress
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -19,7 +18,7 @@ from .backend.cycles import lay_out_cycles
 from .backend.records import ScanProgram
 from .backend.schedule import schedule
 from .diagnostics import Diagnostic, Diagnostics, ScanloomError
-from .forked import forking_possible, run_forked
+from .forked import run_forked
 from .ir import COMPUTED, Program
 from .safety_checks import Finding
 from .lang.frontend import load_program
@@ -120,41 +119,13 @@ def compile_program(path: str | Path, out_dir: str | Path, formats: set[str], di
                     board_override: str | Path | None = None) -> CompileResult:
     """Compile and write `formats` into `out_dir`, or raise with the errors found.
 
-    Once scheduled, the rest runs twice at once where it can (scanloom.forked): the checks,
-    the verdict and the replay are the same in both processes, and each writes its share of
-    the files only when they pass, as one process would.
+    The checks and the independent replay run once, before any file is written; the files are
+    then written by two processes at once where it can be (scanloom.forked), each its share.
     """
-    from .backend.writers import FORMATS, check_formats, output_path, share_out
+    from .backend.writers import check_formats, write_outputs
 
     requested = check_formats(formats)
     done = _front_to_schedule(path, diagnostics, board_override, computed=True)
-    stem, out = Path(path).stem, Path(out_dir)
-    aside, here = share_out(requested) if forking_possible() else \
-        ([], [name for name in FORMATS if name in requested])
-    # (in one process the checks must run once: they report into `diagnostics`)
-    pending = run_forked(_files_aside, done, diagnostics, out, stem, aside) if aside else None
-    try:
-        result = _finish(done, diagnostics, out, stem, here)
-    except BaseException:
-        if pending is not None:
-            with suppress(Exception):  # the same verdict there: it wrote nothing
-                pending.result()
-        raise
-    if pending is not None:
-        order = {output_path(out, stem, name): index for index, name in enumerate(FORMATS)}
-        result.written = sorted(result.written + pending.result(), key=order.__getitem__)
-    return result
-
-
-def _files_aside(done: _Scheduled, diagnostics: Diagnostics, out_dir: Path, stem: str,
-                 names: list[str]) -> list[Path]:
-    """`_finish` in the forked process: only the files it wrote travel back."""
-    return _finish(done, diagnostics, out_dir, stem, names).written
-
-
-def _finish(done: _Scheduled, diagnostics: Diagnostics, out_dir: Path, stem: str,
-            names: list[str]) -> CompileResult:
-    """Checks, verdict, replay, then the files of `names`."""
     checked, scan = _checked(done, diagnostics)
     diagnostics.raise_if_errors()
     report = replay(scan, done.cycles)
@@ -163,7 +134,5 @@ def _finish(done: _Scheduled, diagnostics: Diagnostics, out_dir: Path, stem: str
             "error", "internal error: the independent replay disagrees with the compiled scans",
             hint="this is a scanloom bug; please report it with the program and board\n"
                  + report.render(limit=20))])
-    from .backend.writers import write_formats
-
-    written = write_formats(scan, done.cycles, out_dir, stem, names)
+    written = write_outputs(scan, done.cycles, Path(out_dir), Path(path).stem, requested)
     return CompileResult(checked, scan, done.cycles, report, written)

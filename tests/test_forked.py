@@ -161,8 +161,8 @@ class _Disagreeing:
 @pytest.mark.parametrize("jobs", ["1", None])
 def test_a_replay_that_disagrees_stops_the_compile_before_any_file(
         jobs: str | None, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    # The replay's verdict is reached in both processes (the forked one inherits the same
-    # code), so neither writes its share of the files.
+    # The replay's verdict is reached before the files are shared out between the processes,
+    # so none is written.
     monkeypatch.setattr("scanloom.pipeline.replay", lambda scan, cycles: _Disagreeing())
     code, output, files = _compile(DEMO / "valve_nets.loom", tmp_path / "out", monkeypatch, jobs)
     assert code != 0
