@@ -290,14 +290,20 @@ def random_programs(draw, board: Board):  # type: ignore[no-untyped-def]
     return make_program([make_test("random", steps)])
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
-@given(st.data())
-def test_the_grader_agrees_with_the_virtual_board_on_random_boards(data) -> None:  # type: ignore[no-untyped-def]
+def compiled_random_case(data):  # type: ignore[no-untyped-def]
+    """A random board and program, scheduled with its computed expectations and laid out:
+    (board, electrical board, records, cycles)."""
     board = data.draw(random_boards())
     program = data.draw(random_programs(board))
     electrical = build_electrical(board, Diagnostics())
     scan = schedule(program, board, compute_expectations(program, board, electrical))
-    cycles = lay_out_cycles(scan)
+    return board, electrical, scan, lay_out_cycles(scan)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+@given(st.data())
+def test_the_grader_agrees_with_the_virtual_board_on_random_boards(data) -> None:  # type: ignore[no-untyped-def]
+    board, electrical, scan, cycles = compiled_random_case(data)
     faults = list(fault_universe(electrical))
     nets = list(board.nets)
     specs = [f"short:{nets[0]},U1.{signal}" for signal in ("TDO", "TMS", "TCK", "TDI")]

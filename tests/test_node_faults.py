@@ -14,14 +14,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from scanloom.analysis.board_runs import load_program_run
-from scanloom.analysis.computed import compute_expectations
 from scanloom.analysis.grading import FaultGrader
-from scanloom.backend.cycles import lay_out_cycles
-from scanloom.backend.schedule import schedule
 from scanloom.diagnostics import Diagnostics
-from scanloom.sim.electrical import build_electrical
 from scanloom.sim.faults import OPEN_PIN, SHORT, STUCK_AT, fault_universe, parse_fault_specs
-from test_grading import random_boards, random_programs
+from test_grading import compiled_random_case
 
 EXAMPLES = Path(__file__).parents[1] / "examples" / "irrigation"
 
@@ -87,10 +83,6 @@ def test_faults_on_nodes_logic_reads_go_the_general_way() -> None:
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 @given(st.data())
 def test_node_tables_give_the_general_verdicts_on_random_boards(data) -> None:  # type: ignore[no-untyped-def]
-    board = data.draw(random_boards())
-    program = data.draw(random_programs(board))
-    electrical = build_electrical(board, Diagnostics())
-    scan = schedule(program, board, compute_expectations(program, board, electrical))
-    cycles = lay_out_cycles(scan)
+    _, electrical, scan, cycles = compiled_random_case(data)
     problems, _ = _differences(electrical, scan, cycles, _every_kind(electrical))
     assert problems == []
