@@ -279,7 +279,6 @@ class _RoundState:
     def finish(self, number: int, candidate: set[Node], new_pairs: int) -> Round:
         pins = self.pins
         planner = self.planner
-        board = planner.board
         drivers: dict[Node, OutputPin] = {}
         observed: dict[Node, tuple[str, ...]] = {}
         constants: list[tuple[OutputPin, str, str]] = []
